@@ -1,0 +1,417 @@
+"""The single-scatter path kernel: free-flight events by stratified opacity thresholds.
+
+For each pixel and sample the camera ray is marched through the field's box with a random
+offset, accumulating optical depth from piecewise-constant extinction (midpoint of each
+step). Event k of K is where the composited opacity ``1 - T(t)`` first exceeds a threshold
+drawn in [(k-1)/K, k/K), located exactly inside the step. Each event gathers direct light
+through a shadow ray and one environment direction drawn from the blended lobe. This is
+stratified inverse-CDF sampling of ``L = int T sigma S dt + T(exit) L_bg`` (Beer-Lambert
+transmittance; single scattering).
+
+Accumulator layout, float64, shape (H, W, C) (see :mod:`tracer.accumulate`):
+``[0:3]`` radiance sum, ``[3:6]`` radiance square sum, ``[6]`` alpha sum, ``[7:10]`` albedo sum
+(at event 1), then one block of 8 per feature event (event 1, event 2, level 1, level 2):
+``[count, position x3, normal x3, depth]``.
+"""
+
+import math
+
+import numpy as np
+from numba import njit, prange
+
+from ..config import JIT, JIT_PARALLEL
+from .rng import uniform
+from .sampling import (INV_PI, albedo_at, extinction_at, gradient_index, henyey_greenstein,
+                       sample_cosine, sample_henyey_greenstein, trilinear)
+
+# integer codes (strings never reach compiled code)
+SHADING_PHASE = 0
+SHADING_SURFACE = 1
+SHADING_HYBRID = 2
+ENV_CONSTANT = 0
+ENV_SKY = 1
+ENV_IMAGE = 2
+LIGHT_DIRECTIONAL = 0
+LIGHT_POINT = 1
+
+MAX_EVENTS = 4
+MAX_LEVELS = 2
+MAX_LIGHTS = 16
+N_BASE_CHANNELS = 10
+BLOCK = 8
+
+# random dimensions per path
+DIM_JITTER = 0          # 0, 1
+DIM_OFFSET = 2
+DIM_THRESHOLD = 3       # 3 .. 3 + MAX_EVENTS
+DIM_EVENT = 16          # event k uses DIM_EVENT + DIM_EVENT_STRIDE * k + ...
+DIM_EVENT_STRIDE = 64
+ROULETTE_BELOW = 0.02   # Russian roulette on shadow rays once transmittance falls below this
+ROULETTE_SURVIVE = 0.25
+
+
+@njit(**JIT)
+def box_interval(field_shape, ox, oy, oz, dx, dy, dz):
+    """Ray-box slab test in index space against [0, n-1]^3; returns (t_enter, t_exit), t_exit < t_enter if missed."""
+    t0 = 0.0
+    t1 = np.inf
+    for axis in range(3):
+        o = ox if axis == 0 else (oy if axis == 1 else oz)
+        d = dx if axis == 0 else (dy if axis == 1 else dz)
+        high = field_shape[axis] - 1.0
+        if abs(d) < 1e-300:
+            if o < 0.0 or o > high:
+                return 1.0, 0.0
+        else:
+            a = (0.0 - o) / d
+            b = (high - o) / d
+            if a > b:
+                a, b = b, a
+            t0 = max(t0, a)
+            t1 = min(t1, b)
+    return t0, t1
+
+
+@njit(**JIT)
+def to_index(world_to_index, px, py, pz):
+    m = world_to_index
+    return (m[0, 0] * px + m[0, 1] * py + m[0, 2] * pz + m[0, 3],
+            m[1, 0] * px + m[1, 1] * py + m[1, 2] * pz + m[1, 3],
+            m[2, 0] * px + m[2, 1] * py + m[2, 2] * pz + m[2, 3])
+
+
+@njit(**JIT)
+def to_index_direction(world_to_index, dx, dy, dz):
+    m = world_to_index
+    return (m[0, 0] * dx + m[0, 1] * dy + m[0, 2] * dz,
+            m[1, 0] * dx + m[1, 1] * dy + m[1, 2] * dz,
+            m[2, 0] * dx + m[2, 1] * dy + m[2, 2] * dz)
+
+
+@njit(**JIT)
+def transmittance(field, world_to_index, extinction, lookup, px, py, pz, dx, dy, dz, t_max, step, u_offset, u_roulette):
+    """Unbiased transmittance estimate from world point p along unit direction d up to ``t_max`` mm.
+
+    Marches steps of ``step`` mm with a random first step, extinction at each step's
+    midpoint; once the transmittance falls below ROULETTE_BELOW, one Russian-roulette draw
+    ends the ray or divides on by the survival probability.
+    """
+    ox, oy, oz = to_index(world_to_index, px, py, pz)
+    ix, iy, iz = to_index_direction(world_to_index, dx, dy, dz)
+    t0, t1 = box_interval(field.shape, ox, oy, oz, ix, iy, iz)
+    t1 = min(t1, t_max)
+    if t1 <= t0:
+        return 1.0
+    tau = 0.0
+    weight = 1.0
+    rouletted = False
+    ta = t0
+    tb = t0 + u_offset * step
+    while ta < t1:
+        tb = min(tb, t1)
+        tm = 0.5 * (ta + tb)
+        value = trilinear(field, ox + tm * ix, oy + tm * iy, oz + tm * iz)
+        tau += extinction_at(extinction, lookup, value) * (tb - ta)
+        if not rouletted and math.exp(-tau) < ROULETTE_BELOW:
+            rouletted = True
+            if u_roulette >= ROULETTE_SURVIVE:
+                return 0.0
+            weight = 1.0 / ROULETTE_SURVIVE
+        ta = tb
+        tb = ta + step
+    return weight * math.exp(-tau)
+
+
+@njit(**JIT)
+def environment_radiance(env_kind, env_colors, env_image, dx, dy, dz):
+    """Environment radiance seen along unit direction d (world +z up).
+
+    constant: ``env_colors[0]``; sky: horizon -> zenith by sqrt(z) above the horizon, horizon
+    -> ground within a few degrees below it; image: lat-long, row 0 at +z, column 0 at
+    azimuth 0 (+x), azimuth growing toward +y, bilinear with wrap in azimuth.
+    """
+    if env_kind == ENV_CONSTANT:
+        return env_colors[0, 0], env_colors[0, 1], env_colors[0, 2]
+    if env_kind == ENV_SKY:
+        z = min(max(dz, -1.0), 1.0)
+        if z >= 0.0:
+            s = math.sqrt(z)
+            return (env_colors[1, 0] * (1 - s) + env_colors[0, 0] * s,
+                    env_colors[1, 1] * (1 - s) + env_colors[0, 1] * s,
+                    env_colors[1, 2] * (1 - s) + env_colors[0, 2] * s)
+        s = min(1.0, -z * 8.0)
+        return (env_colors[1, 0] * (1 - s) + env_colors[2, 0] * s,
+                env_colors[1, 1] * (1 - s) + env_colors[2, 1] * s,
+                env_colors[1, 2] * (1 - s) + env_colors[2, 2] * s)
+    h, w = env_image.shape[0], env_image.shape[1]
+    theta = math.acos(min(max(dz, -1.0), 1.0))
+    phi = math.atan2(dy, dx)
+    if phi < 0.0:
+        phi += 2.0 * math.pi
+    v = theta / math.pi * h - 0.5
+    u = phi / (2.0 * math.pi) * w - 0.5
+    r0 = int(math.floor(v))
+    c0 = int(math.floor(u))
+    fv = v - r0
+    fu = u - c0
+    ra = min(max(r0, 0), h - 1)
+    rb = min(max(r0 + 1, 0), h - 1)
+    ca = c0 % w
+    cb = (c0 + 1) % w
+    out0 = 0.0
+    out1 = 0.0
+    out2 = 0.0
+    for rr, wr in ((ra, 1.0 - fv), (rb, fv)):
+        for cc, wc in ((ca, 1.0 - fu), (cb, fu)):
+            wt = wr * wc
+            out0 += wt * env_image[rr, cc, 0]
+            out1 += wt * env_image[rr, cc, 1]
+            out2 += wt * env_image[rr, cc, 2]
+    return out0, out1, out2
+
+
+@njit(**JIT)
+def event_frame(field, world_to_index, gradient_to_world, px, py, pz, dx, dy, dz):
+    """Scalar value, unit normal (facing the incoming ray) and world gradient magnitude at p."""
+    ix, iy, iz = to_index(world_to_index, px, py, pz)
+    value = trilinear(field, ix, iy, iz)
+    gi, gj, gk = gradient_index(field, ix, iy, iz)
+    g = gradient_to_world
+    gx = g[0, 0] * gi + g[0, 1] * gj + g[0, 2] * gk
+    gy = g[1, 0] * gi + g[1, 1] * gj + g[1, 2] * gk
+    gz = g[2, 0] * gi + g[2, 1] * gj + g[2, 2] * gk
+    magnitude = math.sqrt(gx * gx + gy * gy + gz * gz)
+    if magnitude > 0.0:
+        nx, ny, nz = -gx / magnitude, -gy / magnitude, -gz / magnitude
+        if nx * dx + ny * dy + nz * dz > 0.0:
+            nx, ny, nz = -nx, -ny, -nz
+    else:
+        nx, ny, nz = -dx, -dy, -dz
+    return value, nx, ny, nz, magnitude
+
+
+@njit(**JIT)
+def surface_weight(shading, gradient_scale, magnitude):
+    """Weight of the surface lobe: 0 for phase, 1 for surface, ``1 - exp(-|grad| * scale)`` for hybrid."""
+    if shading == SHADING_PHASE:
+        return 0.0
+    if shading == SHADING_SURFACE:
+        return 1.0
+    return 1.0 - math.exp(-magnitude * gradient_scale)
+
+
+@njit(**JIT)
+def lobe(weight, g, nx, ny, nz, dx, dy, dz, lx, ly, lz):
+    """Blended scattering lobe per steradian for light arriving from direction l toward a ray travelling along d.
+
+    Surface part: Lambert ``max(0, n.l)/pi``; volume part: Henyey-Greenstein of the
+    scattering cosine ``d.l`` (light travelling along -l turns to travel along -d).
+    """
+    value = 0.0
+    if weight > 0.0:
+        value += weight * max(0.0, nx * lx + ny * ly + nz * lz) * INV_PI
+    if weight < 1.0:
+        value += (1.0 - weight) * henyey_greenstein(dx * lx + dy * ly + dz * lz, g)
+    return value
+
+
+@njit(**JIT)
+def scattered_light(field, world_to_index, extinction, lookup, lights, env_kind, env_colors, env_image,
+                    step, g, weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim):
+    """Single-scattered radiance S at p before the albedo: direct lights plus one environment direction."""
+    s0 = 0.0
+    s1 = 0.0
+    s2 = 0.0
+    for light in range(lights.shape[0]):
+        kind = int(lights[light, 0])
+        if kind == LIGHT_DIRECTIONAL:
+            lx, ly, lz = lights[light, 1], lights[light, 2], lights[light, 3]
+            distance = np.inf
+            falloff = 1.0
+        else:
+            lx, ly, lz = lights[light, 1] - px, lights[light, 2] - py, lights[light, 3] - pz
+            distance = math.sqrt(lx * lx + ly * ly + lz * lz)
+            if distance <= 0.0:
+                continue
+            lx, ly, lz = lx / distance, ly / distance, lz / distance
+            falloff = 1.0 / (distance * distance)
+        f = lobe(weight, g, nx, ny, nz, dx, dy, dz, lx, ly, lz)
+        if f <= 0.0:
+            continue
+        dim = base_dim + 16 + 2 * light
+        t = transmittance(field, world_to_index, extinction, lookup, px, py, pz, lx, ly, lz, distance, step,
+                          uniform(seed, pixel, sample, dim), uniform(seed, pixel, sample, dim + 1))
+        scale = f * falloff * t
+        s0 += scale * lights[light, 4]
+        s1 += scale * lights[light, 5]
+        s2 += scale * lights[light, 6]
+    # environment: one direction from the blended lobe (pdf = lobe, so the weight is 1)
+    u_lobe = uniform(seed, pixel, sample, base_dim)
+    u1 = uniform(seed, pixel, sample, base_dim + 1)
+    u2 = uniform(seed, pixel, sample, base_dim + 2)
+    if u_lobe < weight:
+        wx, wy, wz = sample_cosine(nx, ny, nz, u1, u2)
+    else:
+        wx, wy, wz = sample_henyey_greenstein(dx, dy, dz, g, u1, u2)
+    t = transmittance(field, world_to_index, extinction, lookup, px, py, pz, wx, wy, wz, np.inf, step,
+                      uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4))
+    if t > 0.0:
+        e0, e1, e2 = environment_radiance(env_kind, env_colors, env_image, wx, wy, wz)
+        s0 += t * e0
+        s1 += t * e1
+        s2 += t * e2
+    return s0, s1, s2
+
+
+@njit(**JIT)
+def trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image, background, background_is_env,
+               shading, n_events, levels, step, g, gradient_scale, seed, row, col, width, height, sample, acc):
+    """One sample path of pixel (row, col); adds its contribution to ``acc[row, col]``."""
+    field, world_to_index, _index_to_world, gradient_to_world = volume
+    albedo, extinction, lookup = transfer
+    pixel = row * width + col
+    # camera ray (box filter over the pixel's square)
+    sx = (col + uniform(seed, pixel, sample, DIM_JITTER)) / width * 2.0 - 1.0
+    sy = 1.0 - (row + uniform(seed, pixel, sample, DIM_JITTER + 1)) / height * 2.0
+    dx = camera[1, 0] + sx * camera[2, 0] + sy * camera[3, 0]
+    dy = camera[1, 1] + sx * camera[2, 1] + sy * camera[3, 1]
+    dz = camera[1, 2] + sx * camera[2, 2] + sy * camera[3, 2]
+    norm = math.sqrt(dx * dx + dy * dy + dz * dz)
+    dx, dy, dz = dx / norm, dy / norm, dz / norm
+    px, py, pz = camera[0, 0], camera[0, 1], camera[0, 2]
+
+    # background seen along the ray
+    if background_is_env:
+        b0, b1, b2 = environment_radiance(env_kind, env_colors, env_image, dx, dy, dz)
+    else:
+        b0, b1, b2 = background[0], background[1], background[2]
+
+    # march, locating the stochastic events and the fixed feature levels
+    n_levels = levels.shape[0]
+    targets = np.empty(MAX_EVENTS)
+    for k in range(n_events):
+        u = (k + uniform(seed, pixel, sample, DIM_THRESHOLD + k)) / n_events
+        targets[k] = -math.log1p(-u)
+    level_targets = np.empty(MAX_LEVELS)
+    for k in range(n_levels):
+        level_targets[k] = -math.log1p(-levels[k])
+    event_t = np.full(MAX_EVENTS, -1.0)
+    level_t = np.full(MAX_LEVELS, -1.0)
+
+    ox, oy, oz = to_index(world_to_index, px, py, pz)
+    ix, iy, iz = to_index_direction(world_to_index, dx, dy, dz)
+    t0, t1 = box_interval(field.shape, ox, oy, oz, ix, iy, iz)
+    tau = 0.0
+    next_event = 0
+    next_level = 0
+    if t1 > t0:
+        ta = t0
+        tb = t0 + uniform(seed, pixel, sample, DIM_OFFSET) * step
+        while ta < t1:
+            tb = min(tb, t1)
+            tm = 0.5 * (ta + tb)
+            value = trilinear(field, ox + tm * ix, oy + tm * iy, oz + tm * iz)
+            sigma = extinction_at(extinction, lookup, value)
+            dtau = sigma * (tb - ta)
+            while next_event < n_events and tau + dtau >= targets[next_event]:
+                event_t[next_event] = ta + (targets[next_event] - tau) / sigma
+                next_event += 1
+            while next_level < n_levels and tau + dtau >= level_targets[next_level]:
+                level_t[next_level] = ta + (level_targets[next_level] - tau) / sigma
+                next_level += 1
+            tau += dtau
+            ta = tb
+            tb = ta + step
+    alpha = -math.expm1(-tau)
+
+    # shade each stratum
+    r0 = 0.0
+    r1 = 0.0
+    r2 = 0.0
+    for k in range(n_events):
+        t = event_t[k]
+        if t < 0.0:
+            r0 += b0
+            r1 += b1
+            r2 += b2
+            continue
+        qx, qy, qz = px + t * dx, py + t * dy, pz + t * dz
+        value, nx, ny, nz, magnitude = event_frame(field, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
+        a0, a1, a2 = albedo_at(albedo, lookup, value)
+        weight = surface_weight(shading, gradient_scale, magnitude)
+        s0, s1, s2 = scattered_light(field, world_to_index, extinction, lookup, lights, env_kind, env_colors,
+                                     env_image, step, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz,
+                                     seed, pixel, sample, DIM_EVENT + DIM_EVENT_STRIDE * k)
+        r0 += a0 * s0
+        r1 += a1 * s1
+        r2 += a2 * s2
+        if k < 2:
+            block = N_BASE_CHANNELS + BLOCK * k
+            acc[row, col, block] += 1.0
+            acc[row, col, block + 1] += qx
+            acc[row, col, block + 2] += qy
+            acc[row, col, block + 3] += qz
+            acc[row, col, block + 4] += nx
+            acc[row, col, block + 5] += ny
+            acc[row, col, block + 6] += nz
+            acc[row, col, block + 7] += t
+            if k == 0:
+                acc[row, col, 7] += a0
+                acc[row, col, 8] += a1
+                acc[row, col, 9] += a2
+    for k in range(n_levels):
+        t = level_t[k]
+        if t < 0.0:
+            continue
+        qx, qy, qz = px + t * dx, py + t * dy, pz + t * dz
+        value, nx, ny, nz, magnitude = event_frame(field, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
+        block = N_BASE_CHANNELS + BLOCK * (2 + k)
+        acc[row, col, block] += 1.0
+        acc[row, col, block + 1] += qx
+        acc[row, col, block + 2] += qy
+        acc[row, col, block + 3] += qz
+        acc[row, col, block + 4] += nx
+        acc[row, col, block + 5] += ny
+        acc[row, col, block + 6] += nz
+        acc[row, col, block + 7] += t
+    r0 /= n_events
+    r1 /= n_events
+    r2 /= n_events
+    acc[row, col, 0] += r0
+    acc[row, col, 1] += r1
+    acc[row, col, 2] += r2
+    acc[row, col, 3] += r0 * r0
+    acc[row, col, 4] += r1 * r1
+    acc[row, col, 5] += r2 * r2
+    acc[row, col, 6] += alpha
+
+
+@njit(**JIT_PARALLEL)
+def render_rows(volume, transfer, camera, lights, env_kind, env_colors, env_image, background, background_is_env,
+                shading, n_events, levels, step, g, gradient_scale, seed, row_start, row_end,
+                sample_start, sample_end, acc):
+    """Add samples [sample_start, sample_end) of rows [row_start, row_end) to ``acc``.
+
+    Parameters
+    ----------
+    volume : VolumeArrays (field (nx, ny, nz) float32; world_to_index (3, 4); index_to_world (3, 4);
+        gradient_to_world (3, 3); float64)
+    transfer : TransferArrays (albedo (n, 3) float32; extinction (n,) float32 per mm; lookup (2,) float64)
+    camera : (4, 3) float64 rows: position (mm), forward (unit), right and up scaled by the
+        half-extent of the image plane at distance 1
+    lights : (n_lights, 7) float64 rows ``[kind, x, y, z, r, g, b]``: toward (unit) and irradiance for
+        directional lights, position (mm) and intensity for point lights
+    env_colors : (3, 3) float64; env_image : (h, w, 3) float32; background : (3,) float64
+    levels : (n_levels,) float64 opacity levels of the fixed feature events
+    acc : (H, W, C) float64 accumulator; each row is written by exactly one iteration, and
+        each pixel receives its samples in increasing order, so the sums are bit-identical for
+        any thread count or pass split.
+    """
+    width = acc.shape[1]
+    height = acc.shape[0]
+    for row in prange(row_start, row_end):
+        for col in range(width):
+            for sample in range(sample_start, sample_end):
+                trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image, background,
+                           background_is_env, shading, n_events, levels, step, g, gradient_scale, seed,
+                           row, col, width, height, sample, acc)

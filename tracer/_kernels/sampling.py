@@ -1,0 +1,140 @@
+"""Field sampling, transfer-function lookup, phase functions and direction sampling.
+
+Coordinates passed here are in voxel-index space: voxel (i, j, k) sits at integer (i, j, k)
+and the field is trilinear between them. Callers keep points inside [0, n-1] per axis.
+"""
+
+import math
+
+import numpy as np
+from numba import njit
+
+from ..config import JIT
+
+INV_PI = 1.0 / math.pi
+INV_4PI = 1.0 / (4.0 * math.pi)
+
+
+@njit(**JIT)
+def trilinear(field, x, y, z):
+    """Trilinear value of ``field`` (nx, ny, nz) float32 at index point (x, y, z), clamped to the box."""
+    nx, ny, nz = field.shape
+    x = min(max(x, 0.0), nx - 1.0)
+    y = min(max(y, 0.0), ny - 1.0)
+    z = min(max(z, 0.0), nz - 1.0)
+    i = min(int(x), nx - 2)
+    j = min(int(y), ny - 2)
+    k = min(int(z), nz - 2)
+    fx = x - i
+    fy = y - j
+    fz = z - k
+    c00 = field[i, j, k] * (1.0 - fx) + field[i + 1, j, k] * fx
+    c10 = field[i, j + 1, k] * (1.0 - fx) + field[i + 1, j + 1, k] * fx
+    c01 = field[i, j, k + 1] * (1.0 - fx) + field[i + 1, j, k + 1] * fx
+    c11 = field[i, j + 1, k + 1] * (1.0 - fx) + field[i + 1, j + 1, k + 1] * fx
+    c0 = c00 * (1.0 - fy) + c10 * fy
+    c1 = c01 * (1.0 - fy) + c11 * fy
+    return c0 * (1.0 - fz) + c1 * fz
+
+
+@njit(**JIT)
+def gradient_index(field, x, y, z):
+    """Central differences of the trilinear field, one voxel either side, in value per voxel.
+
+    At the box faces the stencil is clamped and divided by its true width, so at voxel
+    centres this equals ``numpy.gradient`` (first-order one-sided differences at the edges).
+    Returns (gx, gy, gz).
+    """
+    nx, ny, nz = field.shape
+    xp = min(x + 1.0, nx - 1.0)
+    xm = max(x - 1.0, 0.0)
+    yp = min(y + 1.0, ny - 1.0)
+    ym = max(y - 1.0, 0.0)
+    zp = min(z + 1.0, nz - 1.0)
+    zm = max(z - 1.0, 0.0)
+    gx = (trilinear(field, xp, y, z) - trilinear(field, xm, y, z)) / max(xp - xm, 1e-12)
+    gy = (trilinear(field, x, yp, z) - trilinear(field, x, ym, z)) / max(yp - ym, 1e-12)
+    gz = (trilinear(field, x, y, zp) - trilinear(field, x, y, zm)) / max(zp - zm, 1e-12)
+    return gx, gy, gz
+
+
+@njit(**JIT)
+def table_position(lookup, n_entries, value):
+    """Fractional entry of ``value`` in a baked table, clamped to [0, n_entries - 1]."""
+    u = (value - lookup[0]) * lookup[1]
+    return min(max(u, 0.0), n_entries - 1.0)
+
+
+@njit(**JIT)
+def extinction_at(extinction, lookup, value):
+    """Extinction per mm at a scalar value, linear between table entries."""
+    n = extinction.shape[0]
+    u = table_position(lookup, n, value)
+    e = min(int(u), n - 2)
+    f = u - e
+    return extinction[e] * (1.0 - f) + extinction[e + 1] * f
+
+
+@njit(**JIT)
+def albedo_at(albedo, lookup, value):
+    """Linear RGB albedo at a scalar value, linear between table entries."""
+    n = albedo.shape[0]
+    u = table_position(lookup, n, value)
+    e = min(int(u), n - 2)
+    f = u - e
+    return (albedo[e, 0] * (1.0 - f) + albedo[e + 1, 0] * f,
+            albedo[e, 1] * (1.0 - f) + albedo[e + 1, 1] * f,
+            albedo[e, 2] * (1.0 - f) + albedo[e + 1, 2] * f)
+
+
+@njit(**JIT)
+def henyey_greenstein(cos_theta, g):
+    """Henyey-Greenstein phase function per steradian (Henyey and Greenstein 1941).
+
+    ``cos_theta`` is the cosine between the direction of travel before and after scattering;
+    ``g > 0`` favours forward scattering; the mean cosine is ``g``.
+    """
+    denominator = 1.0 + g * g - 2.0 * g * cos_theta
+    return INV_4PI * (1.0 - g * g) / (denominator * math.sqrt(denominator))
+
+
+@njit(**JIT)
+def sample_henyey_greenstein_cos(g, u):
+    """Inverse-CDF sample of the scattering cosine for Henyey-Greenstein (Henyey and Greenstein 1941)."""
+    if abs(g) < 1e-3:
+        return 1.0 - 2.0 * u
+    s = (1.0 - g * g) / (1.0 - g + 2.0 * g * u)
+    return min(max((1.0 + g * g - s * s) / (2.0 * g), -1.0), 1.0)
+
+
+@njit(**JIT)
+def orthonormal_basis(nx, ny, nz):
+    """Two unit vectors completing the unit vector n to a right-handed frame (Duff et al. 2017)."""
+    sign = 1.0 if nz >= 0.0 else -1.0
+    a = -1.0 / (sign + nz)
+    b = nx * ny * a
+    return (1.0 + sign * nx * nx * a, sign * b, -sign * nx), (b, sign + ny * ny * a, -ny)
+
+
+@njit(**JIT)
+def direction_around(ax, ay, az, cos_theta, phi):
+    """The unit vector at angle acos(cos_theta) from axis a, at azimuth phi."""
+    sin_theta = math.sqrt(max(0.0, 1.0 - cos_theta * cos_theta))
+    t, b = orthonormal_basis(ax, ay, az)
+    cp = math.cos(phi) * sin_theta
+    sp = math.sin(phi) * sin_theta
+    return (t[0] * cp + b[0] * sp + ax * cos_theta,
+            t[1] * cp + b[1] * sp + ay * cos_theta,
+            t[2] * cp + b[2] * sp + az * cos_theta)
+
+
+@njit(**JIT)
+def sample_henyey_greenstein(dx, dy, dz, g, u1, u2):
+    """A scattered direction around the travel direction d, distributed as Henyey-Greenstein."""
+    return direction_around(dx, dy, dz, sample_henyey_greenstein_cos(g, u1), 2.0 * math.pi * u2)
+
+
+@njit(**JIT)
+def sample_cosine(nx, ny, nz, u1, u2):
+    """A direction in the hemisphere around n with density cos(theta)/pi (Lambert)."""
+    return direction_around(nx, ny, nz, math.sqrt(1.0 - u1), 2.0 * math.pi * u2)

@@ -1,0 +1,66 @@
+"""The pinhole camera: pixel <-> ray.
+
+Row 0 is the top of the image; columns grow toward the camera's right, ``forward x up``
+(right-handed world). ``fov_deg`` is the full vertical angle; the horizontal extent follows
+the aspect ratio width / height. Pixel (row r, column c) is sampled uniformly in its square.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import UserError
+
+
+@dataclass(frozen=True)
+class Camera:
+    """A pinhole camera in world millimetres."""
+
+    position: tuple[float, float, float]
+    target: tuple[float, float, float]
+    up: tuple[float, float, float] = (0.0, 0.0, 1.0)
+    fov_deg: float = 30.0
+    width: int = 512
+    height: int = 512
+
+    def frame(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Unit forward, right and up vectors."""
+        position = np.asarray(self.position, dtype=np.float64)
+        forward = np.asarray(self.target, dtype=np.float64) - position
+        length = np.linalg.norm(forward)
+        if length <= 0:
+            raise UserError("camera: position equals target; the camera has no viewing direction")
+        forward /= length
+        right = np.cross(forward, np.asarray(self.up, dtype=np.float64))
+        if np.linalg.norm(right) < 1e-9:
+            raise UserError("camera: up is parallel to the viewing direction; choose another up vector")
+        right /= np.linalg.norm(right)
+        up = np.cross(right, forward)
+        return forward, right, up
+
+    def to_array(self) -> np.ndarray:
+        """(4, 3) float64 rows: position, forward, right and up scaled to the image plane at distance 1."""
+        forward, right, up = self.frame()
+        half_height = math.tan(math.radians(self.fov_deg) / 2.0)
+        half_width = half_height * self.width / self.height
+        return np.array([self.position, forward, right * half_width, up * half_height], dtype=np.float64)
+
+    def ray_directions(self, rows, cols, jitter_row=0.5, jitter_col=0.5) -> np.ndarray:
+        """(..., 3) unit directions through points of pixels (rows, cols); jitter in [0, 1) inside the pixel."""
+        array = self.to_array()
+        sx = (np.asarray(cols) + jitter_col) / self.width * 2.0 - 1.0
+        sy = 1.0 - (np.asarray(rows) + jitter_row) / self.height * 2.0
+        d = array[1] + sx[..., None] * array[2] + sy[..., None] * array[3]
+        return d / np.linalg.norm(d, axis=-1, keepdims=True)
+
+    def project(self, points) -> np.ndarray:
+        """(..., 2) fractional (row, col) image positions of world points in front of the camera."""
+        array = self.to_array()
+        rel = np.asarray(points, dtype=np.float64) - array[0]
+        z = rel @ array[1]
+        sx = (rel @ (array[2] / np.dot(array[2], array[2]))) / z
+        sy = (rel @ (array[3] / np.dot(array[3], array[3]))) / z
+        return np.stack([(1.0 - sy) / 2.0 * self.height, (sx + 1.0) / 2.0 * self.width], axis=-1)

@@ -1,0 +1,54 @@
+"""Compile policy, limits and the thread-count context manager.
+
+One place decides how kernels are compiled. ``fastmath`` is off: its ``nnan``/``ninf``
+flags would delete the NaN checks we rely on, and the safe subset buys nothing
+(measured, see the stack notes). ``error_model="numpy"`` gives IEEE division everywhere.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+
+#: Options for every serial kernel.
+JIT = dict(cache=True, fastmath=False, error_model="numpy", nogil=True)
+#: Options for kernels with a ``prange`` loop.
+JIT_PARALLEL = dict(JIT, parallel=True)
+
+#: Default memory budget for one loaded volume or one frame's accumulators (bytes).
+DEFAULT_MEMORY_BUDGET = 8 * 1024**3
+
+
+def memory_budget() -> int:
+    """Bytes a single volume or frame may take; ``TRACER_MEMORY_BUDGET_MB`` overrides."""
+    value = os.environ.get("TRACER_MEMORY_BUDGET_MB")
+    if value is None:
+        return DEFAULT_MEMORY_BUDGET
+    try:
+        megabytes = float(value)
+    except ValueError:
+        from .errors import UserError
+
+        raise UserError(f"TRACER_MEMORY_BUDGET_MB={value!r}: not a number of megabytes")
+    return int(megabytes * 1024**2)
+
+
+@contextlib.contextmanager
+def num_threads(n: int | None):
+    """Run the body with ``n`` numba threads, then restore the previous count.
+
+    ``numba.set_num_threads`` is thread-local, so this affects only the calling thread.
+    ``None`` leaves the count unchanged.
+    """
+    import numba
+
+    if n is None:
+        yield
+        return
+    previous = numba.get_num_threads()
+    n = max(1, min(int(n), numba.config.NUMBA_NUM_THREADS))
+    numba.set_num_threads(n)
+    try:
+        yield
+    finally:
+        numba.set_num_threads(previous)

@@ -1,0 +1,1 @@
+"""File formats: NRRD/NPY in, NPZ/EXR/PNG out, TOML configuration. Arrays and metadata cross this line."""

@@ -1,0 +1,53 @@
+"""NPZ render files: float32 buffers by key, and ``meta`` as a 0-d JSON string. Never pickled."""
+
+from __future__ import annotations
+
+import json
+import zipfile
+from pathlib import Path
+
+import numpy as np
+
+from ..buffers import Frame, buffer_specs
+from ..errors import UserError
+from .atomic import atomic_path
+
+
+def write_npz(path, frame: Frame) -> Path:
+    path = Path(path)
+    arrays = {key: np.ascontiguousarray(value, dtype=np.float32) for key, value in frame.buffers.items()}
+    arrays["meta"] = np.array(frame.meta_json())
+    with atomic_path(path) as temporary:
+        with open(temporary, "wb") as handle:
+            np.savez_compressed(handle, **arrays)
+    return path
+
+
+def read_npz(path) -> Frame:
+    """Read a render NPZ and check it holds the buffers of the file contract."""
+    path = Path(path)
+    try:
+        with np.load(path, allow_pickle=False) as archive:
+            contents = {key: archive[key] for key in archive.files}
+    except FileNotFoundError:
+        raise UserError(f"{path}: file not found")
+    except (ValueError, OSError, zipfile.BadZipFile, EOFError) as error:
+        raise UserError(f"{path}: not a readable render NPZ: {str(error).splitlines()[0] if str(error) else type(error).__name__}")
+    if "meta" not in contents:
+        raise UserError(f"{path}: meta: missing; not a render file of this tool")
+    try:
+        meta = json.loads(str(contents.pop("meta")))
+    except json.JSONDecodeError:
+        raise UserError(f"{path}: meta: not valid JSON")
+    n_levels = sum(1 for key in contents if key.startswith("level") and key.endswith("_hit"))
+    shape = None
+    for spec in buffer_specs(n_levels):
+        if spec.key not in contents:
+            raise UserError(f"{path}: {spec.key}: buffer missing")
+        array = contents[spec.key]
+        expected = array.shape[:2] + ((3,) if spec.channels == 3 else ())
+        if array.ndim not in (2, 3) or array.shape != expected or (shape is not None and array.shape[:2] != shape):
+            raise UserError(f"{path}: {spec.key}: unexpected shape {array.shape}")
+        shape = array.shape[:2]
+    meta["source_file"] = str(path)
+    return Frame(buffers={k: v.astype(np.float32, copy=False) for k, v in contents.items()}, meta=meta)

@@ -1,0 +1,154 @@
+"""Safe reading of NRRD volumes (attached ``.nrrd`` and detached ``.nhdr``).
+
+Checks happen on the header before any data is read: dimension, sizes, type, encoding,
+the memory budget, and that a detached data file stays inside the header's folder
+(pynrrd itself follows any relative or absolute path). Field names follow the NRRD
+file format specification (teem): ``sizes``, ``type``, ``encoding``, ``space directions``,
+``space origin``, ``spacings``, ``data file``.
+"""
+
+from __future__ import annotations
+
+import os
+import zlib
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import UserError
+
+#: NRRD ``type`` values we accept, by the numpy dtype they read as.
+ACCEPTED_DTYPES = ("int8", "uint8", "int16", "uint16", "int32", "uint32", "float32", "float64")
+ENCODINGS = ("raw", "gzip", "gz", "bzip2", "bz2", "ascii", "text", "txt")
+
+
+@dataclass(frozen=True)
+class RawVolume:
+    """What a volume file holds: the array in [x, y, z] order and its geometry."""
+
+    data: np.ndarray          # (nx, ny, nz), file dtype, native byte order
+    origin: np.ndarray        # (3,) mm
+    directions: np.ndarray    # (3, 3) row a = world step (mm) of index axis a
+    dtype: str
+
+
+def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
+    """Read a 3-D scalar NRRD file, refusing what cannot be a volume before reading data."""
+    import nrrd
+
+    path = Path(path)
+    try:
+        header = nrrd.read_header(str(path))
+    except FileNotFoundError:
+        raise UserError(f"{path}: file not found")
+    except (nrrd.NRRDError, ValueError, KeyError, UnicodeDecodeError) as error:
+        raise UserError(f"{path}: not a readable NRRD header: {_reason(error)}")
+    except OSError as error:
+        raise UserError(f"{path}: cannot read: {error.strerror or error}")
+
+    dimension = int(header.get("dimension", 0))
+    sizes = [int(s) for s in np.atleast_1d(header.get("sizes", []))]
+    if dimension != 3 or len(sizes) != 3:
+        raise UserError(f"{path}: dimension: a volume must be 3-D, this file is {dimension}-D (sizes {sizes})")
+    if min(sizes) < 2:
+        raise UserError(f"{path}: sizes: every axis needs at least 2 samples, got {sizes}")
+
+    type_name = str(header.get("type", ""))
+    try:
+        dtype = np.dtype(nrrd.reader._determine_datatype(header))
+    except (nrrd.NRRDError, KeyError, TypeError, ValueError):
+        raise UserError(f"{path}: type: unknown or unsupported NRRD type {type_name!r}")
+    if dtype.name.replace(">", "").replace("<", "") not in ACCEPTED_DTYPES:
+        raise UserError(f"{path}: type: {type_name!r} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
+    encoding = str(header.get("encoding", "")).lower()
+    if encoding not in ENCODINGS:
+        raise UserError(f"{path}: encoding: unknown or unsupported encoding {encoding!r}")
+
+    n_bytes = int(np.prod(sizes)) * (dtype.itemsize + 4)
+    if n_bytes > budget_bytes:
+        raise UserError(
+            f"{path}: sizes: {sizes} needs {n_bytes / 2**20:.0f} MiB, over the memory budget of "
+            f"{budget_bytes / 2**20:.0f} MiB (set TRACER_MEMORY_BUDGET_MB to raise it)"
+        )
+
+    data_file = header.get("data file", header.get("datafile"))
+    if data_file is not None:
+        _check_detached(path, str(data_file))
+
+    origin, directions = _geometry(path, header)
+
+    try:
+        data, _ = nrrd.read(str(path), index_order="F")
+    except FileNotFoundError as error:
+        raise UserError(f"{path}: data file: {error.filename or data_file} not found")
+    except (nrrd.NRRDError, ValueError, KeyError, EOFError, zlib.error) as error:
+        raise UserError(f"{path}: data: cannot read the voxels: {_reason(error)}")
+    except OSError as error:
+        raise UserError(f"{path}: data: cannot read the voxels: {_reason(error)}")
+    if tuple(data.shape) != tuple(sizes):
+        raise UserError(f"{path}: data: read shape {data.shape} does not match sizes {sizes}")
+    data = data.astype(data.dtype.newbyteorder("="), copy=False)
+    return RawVolume(data=data, origin=origin, directions=directions, dtype=data.dtype.name)
+
+
+def _check_detached(path: Path, data_file: str) -> None:
+    """Refuse a detached data file that resolves outside the header's folder."""
+    if data_file.startswith("LIST") or "%" in data_file or " " in data_file.strip():
+        raise UserError(f"{path}: data file: multi-file data ({data_file!r}) is not supported")
+    folder = os.path.realpath(path.parent)
+    target = os.path.realpath(os.path.join(folder, data_file))
+    if os.path.commonpath([folder, target]) != folder:
+        raise UserError(
+            f"{path}: data file: {data_file!r} lies outside the header's folder; refused "
+            "(move the data next to the header)"
+        )
+
+
+def _geometry(path: Path, header: dict) -> tuple[np.ndarray, np.ndarray]:
+    """Origin (3,) and per-axis direction rows (3, 3), in mm, from the header."""
+    if "space directions" in header:
+        directions = np.asarray(header["space directions"], dtype=np.float64)
+        if directions.shape != (3, 3) or not np.all(np.isfinite(directions)):
+            raise UserError(f"{path}: space directions: expected three finite 3-vectors, got {directions.tolist()}")
+    elif "spacings" in header:
+        spacings = np.asarray(header["spacings"], dtype=np.float64)
+        if spacings.shape != (3,) or not np.all(np.isfinite(spacings)):
+            raise UserError(f"{path}: spacings: expected three finite numbers, got {spacings.tolist()}")
+        directions = np.diag(spacings)
+    else:
+        directions = np.eye(3)
+    lengths = np.linalg.norm(directions, axis=1)
+    if np.any(lengths <= 0):
+        raise UserError(f"{path}: space directions: axis {int(np.argmin(lengths))} has zero length")
+    unit = directions / lengths[:, None]
+    if abs(np.linalg.det(unit)) < 1e-6:
+        raise UserError(f"{path}: space directions: the axis vectors are parallel (volume has no extent)")
+    origin = np.zeros(3)
+    if "space origin" in header:
+        origin = np.asarray(header["space origin"], dtype=np.float64)
+        if origin.shape != (3,) or not np.all(np.isfinite(origin)):
+            raise UserError(f"{path}: space origin: expected three finite numbers, got {origin.tolist()}")
+    return origin, directions
+
+
+def _reason(error: BaseException) -> str:
+    text = str(error).strip() or type(error).__name__
+    return text.splitlines()[0]
+
+
+def write_nrrd(path: Path, data: np.ndarray, origin, directions, *, compression_level: int = 9) -> None:
+    """Write a volume in [x, y, z] order as a gzip NRRD, atomically."""
+    import nrrd
+
+    header = {
+        "space": "right-anterior-superior",
+        "space directions": np.asarray(directions, dtype=np.float64),
+        "space origin": np.asarray(origin, dtype=np.float64),
+        "kinds": ["domain", "domain", "domain"],
+        "encoding": "gzip",
+    }
+    from .atomic import atomic_path
+
+    with atomic_path(path) as temporary:
+        nrrd.write(str(temporary), data, header, index_order="F", compression_level=compression_level)

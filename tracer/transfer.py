@@ -1,0 +1,173 @@
+"""Transfer functions: scalar value -> albedo and opacity per reference length, and baking.
+
+A transfer function is piecewise linear in the scalar value between its control points and
+clamped outside them. Opacity ``a`` per reference length ``l`` becomes extinction
+``sigma = -ln(1 - a) / l`` (opacity correction, so a render does not depend on the step size;
+Engel et al., *Real-Time Volume Graphics*, 2006).
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import NamedTuple
+
+import numpy as np
+
+from .errors import UserError
+
+#: Opacity is capped just below 1 so that extinction stays finite (13.8 per reference length).
+MAX_OPACITY = 1.0 - 1e-6
+#: Entries of a baked lookup table.
+DEFAULT_TABLE_SIZE = 4096
+SCALES = ("raw", "HU")
+
+
+class TransferArrays(NamedTuple):
+    """What kernels see of a transfer function.
+
+    albedo : (n, 3) float32 linear RGB;  extinction : (n,) float32 per mm;
+    lookup : (2,) float64 ``[low, entries per unit value]``; entry ``e`` holds value ``low + e / lookup[1]``.
+    """
+
+    albedo: np.ndarray
+    extinction: np.ndarray
+    lookup: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
+class TransferFunction:
+    """Control points of opacity and albedo over scalar values.
+
+    Parameters
+    ----------
+    opacity_values, opacity : (n,) arrays
+        Increasing scalar values and the opacity per ``reference_length_mm`` at each, in [0, 1].
+    color_values : (m,) array; colors : (m, 3) array
+        Increasing scalar values and linear albedo in [0, 1].
+    reference_length_mm : float
+        Length over which ``opacity`` is the fraction of light absorbed or scattered.
+    name, scale, notes : str
+        ``scale`` is ``"HU"`` for presets on the Hounsfield scale, ``"raw"`` otherwise.
+    """
+
+    opacity_values: np.ndarray
+    opacity: np.ndarray
+    color_values: np.ndarray
+    colors: np.ndarray
+    reference_length_mm: float = 1.0
+    name: str = "unnamed"
+    scale: str = "raw"
+    notes: str = ""
+    source: str = field(default="<inline>")
+
+    def opacity_at(self, values) -> np.ndarray:
+        """Opacity per reference length at ``values`` (piecewise linear, clamped)."""
+        return np.interp(np.asarray(values, dtype=np.float64), self.opacity_values, self.opacity)
+
+    def albedo_at(self, values) -> np.ndarray:
+        """(..., 3) linear albedo at ``values``."""
+        values = np.asarray(values, dtype=np.float64)
+        return np.stack([np.interp(values, self.color_values, self.colors[:, c]) for c in range(3)], axis=-1)
+
+    def extinction_at(self, values) -> np.ndarray:
+        """Extinction per mm at ``values``: ``-ln(1 - opacity) / reference_length_mm``."""
+        return opacity_to_extinction(self.opacity_at(values), self.reference_length_mm)
+
+    @property
+    def span(self) -> tuple[float, float]:
+        """The range of scalar values where the function has control points."""
+        low = min(self.opacity_values[0], self.color_values[0])
+        high = max(self.opacity_values[-1], self.color_values[-1])
+        return float(low), float(high)
+
+    def bake(self, low: float, high: float, n_entries: int = DEFAULT_TABLE_SIZE) -> TransferArrays:
+        """Lookup tables over the data range [low, high], sampled at ``n_entries`` evenly spaced values.
+
+        Kernels interpolate linearly between entries. Extinction is tabulated (not opacity),
+        so the table is exact at every entry and the step size never enters.
+        """
+        if not high > low:
+            high = low + 1.0
+        values = np.linspace(low, high, n_entries)
+        return TransferArrays(
+            albedo=np.ascontiguousarray(self.albedo_at(values), dtype=np.float32),
+            extinction=np.ascontiguousarray(self.extinction_at(values), dtype=np.float32),
+            lookup=np.array([low, (n_entries - 1) / (high - low)], dtype=np.float64),
+        )
+
+    def to_dict(self) -> dict:
+        return {
+            "name": self.name,
+            "reference_length_mm": self.reference_length_mm,
+            "scale": self.scale,
+            "opacity": [[float(v), float(a)] for v, a in zip(self.opacity_values, self.opacity)],
+            "color": [[float(v), [float(x) for x in c]] for v, c in zip(self.color_values, self.colors)],
+        }
+
+    def to_toml(self) -> str:
+        lines = [f"name = {json.dumps(self.name)}", f"reference_length_mm = {self.reference_length_mm!r}",
+                 f"scale = {json.dumps(self.scale)}"]
+        if self.notes:
+            lines.append(f"notes = {json.dumps(self.notes)}")
+        lines.append("opacity = [" + ", ".join(f"[{v!r}, {a!r}]" for v, a in self.to_dict()["opacity"]) + "]")
+        lines.append("color = [" + ", ".join(f"[{v!r}, [{c[0]!r}, {c[1]!r}, {c[2]!r}]]"
+                                              for v, c in self.to_dict()["color"]) + "]")
+        return "\n".join(lines) + "\n"
+
+
+def opacity_to_extinction(opacity, reference_length_mm: float = 1.0) -> np.ndarray:
+    """``sigma = -ln(1 - a) / l`` with ``a`` capped at :data:`MAX_OPACITY` (Engel et al. 2006)."""
+    opacity = np.minimum(np.asarray(opacity, dtype=np.float64), MAX_OPACITY)
+    return -np.log1p(-opacity) / reference_length_mm
+
+
+def load_transfer_function(path) -> TransferFunction:
+    """Read and validate a transfer-function TOML file (format in the README)."""
+    from .io.tomlfile import read_toml
+
+    path = Path(path)
+    return parse_transfer_function(read_toml(path), path)
+
+
+def parse_transfer_function(data: dict, source="<inline>") -> TransferFunction:
+    """Validate a parsed transfer-function table; errors name the file, the key and the entry."""
+    from .io.tomlfile import Table, check_vector
+
+    table = Table(data, source)
+    name = table.string("name", "unnamed")
+    reference = table.number("reference_length_mm", 1.0, low=0.0, low_open=True)
+    scale = table.string("scale", "raw", choices=SCALES)
+    notes = table.string("notes", "")
+    opacity_points = table.raw("opacity")
+    color_points = table.raw("color")
+    table.finish()
+
+    def points(key, entries, parse):
+        if not isinstance(entries, list) or len(entries) < 1:
+            raise table.error(key, "expected a list of [value, ...] control points")
+        values, payload = [], []
+        for index, entry in enumerate(entries):
+            where = f"{table.where(key)}[{index}]"
+            if not isinstance(entry, list) or len(entry) != 2:
+                raise UserError(f"{where}: expected [value, {'opacity' if key == 'opacity' else '[r, g, b]'}], got {entry!r}")
+            value = check_vector([entry[0]], where, length=1)[0]
+            if values and value <= values[-1]:
+                raise UserError(f"{where}: values must increase, but {value!r} follows {values[-1]!r}")
+            values.append(value)
+            payload.append(parse(entry[1], where))
+        return np.array(values), np.array(payload)
+
+    def parse_opacity(item, where):
+        return check_vector([item], f"{where} opacity", length=1, low=0.0, high=1.0)[0]
+
+    def parse_color(item, where):
+        return check_vector(item, f"{where} colour", length=3, low=0.0, high=1.0)
+
+    opacity_values, opacity = points("opacity", opacity_points, parse_opacity)
+    color_values, colors = points("color", color_points, parse_color)
+    return TransferFunction(
+        opacity_values=opacity_values, opacity=opacity, color_values=color_values, colors=colors.reshape(-1, 3),
+        reference_length_mm=reference, name=name, scale=scale, notes=notes, source=str(source),
+    )
