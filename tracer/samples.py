@@ -112,8 +112,8 @@ def figurine(seed: int = 11) -> Sample:
     for cx, cy, cz, r in zip(px, py, pz, pr):
         occupancy = occupancy * (1 - _occupancy(_ellipsoid(x, y, z, (cx, cy, cz), (r, r, r)), voxel))
     hu = AIR_HU + occupancy * (CLAY_HU - AIR_HU)
-    # the armature: a 1 mm steel wire up the spine and across the shoulders
-    wire = np.minimum(_segment(x, y, z, (0, 1, 4), (0, 1, 41), 0.5), _segment(x, y, z, (-9, 1, 30), (9, 1, 30), 0.5))
+    # the armature: a 1.2 mm steel wire up the spine and across the shoulders
+    wire = np.minimum(_segment(x, y, z, (0, 1, 4), (0, 1, 41), 0.6), _segment(x, y, z, (-9, 1, 30), (9, 1, 30), 0.6))
     metal = _occupancy(wire, voxel)
     hu = hu + metal * (STEEL_HU - hu)
     hu = hu + 18.0 * _gaussian_noise(shape, seed, 2)

@@ -55,15 +55,17 @@ def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
         raise UserError(f"{path}: sizes: every axis needs at least 2 samples, got {sizes}")
 
     type_name = str(header.get("type", ""))
-    try:
-        dtype = np.dtype(nrrd.reader._determine_datatype(header))
-    except (nrrd.NRRDError, KeyError, TypeError, ValueError):
+    if type_name not in nrrd.reader._TYPEMAP_NRRD2NUMPY:
         raise UserError(f"{path}: type: unknown or unsupported NRRD type {type_name!r}")
-    if dtype.name.replace(">", "").replace("<", "") not in ACCEPTED_DTYPES:
-        raise UserError(f"{path}: type: {type_name!r} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
     encoding = str(header.get("encoding", "")).lower()
     if encoding not in ENCODINGS:
         raise UserError(f"{path}: encoding: unknown or unsupported encoding {encoding!r}")
+    try:
+        dtype = np.dtype(nrrd.reader._determine_datatype(header))
+    except (nrrd.NRRDError, KeyError, TypeError, ValueError) as error:
+        raise UserError(f"{path}: endian: {_reason(error)}")
+    if dtype.name.replace(">", "").replace("<", "") not in ACCEPTED_DTYPES:
+        raise UserError(f"{path}: type: {type_name!r} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
 
     n_bytes = int(np.prod(sizes)) * (dtype.itemsize + 4)
     if n_bytes > budget_bytes:

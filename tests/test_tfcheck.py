@@ -1,0 +1,69 @@
+"""tf-check findings: optical depth by the Beer-Lambert law, and warnings for useless functions."""
+
+import math
+
+import numpy as np
+import pytest
+
+from tracer.tfcheck import check_transfer_function, plot_transfer_check
+from tracer.transfer import TransferFunction
+from tracer.volume import Volume
+
+
+def constant(value_points, opacity_points):
+    return TransferFunction(np.array(value_points, float), np.array(opacity_points, float),
+                            np.array([0.0]), np.array([[0.5, 0.5, 0.5]]))
+
+
+def cube(values):
+    return Volume(values.astype(np.float32), directions=np.eye(3) * 0.5)
+
+
+def test_optical_depth_along_the_diagonal():
+    """Uniform material with opacity a per mm crossed over the diagonal D: optical depth -ln(1-a) * D."""
+    data = np.ones((9, 9, 9))
+    check = check_transfer_function(cube(data), constant([0.0, 2.0], [0.1, 0.1]))
+    diagonal = math.sqrt(3) * 4.0
+    assert check.diagonal_mm == pytest.approx(diagonal)
+    assert check.optical_depth == pytest.approx(-math.log(0.9) * diagonal)
+    assert check.nonzero_fraction == 1.0
+
+
+def test_transparent_function_warns():
+    data = np.linspace(0, 1, 8**3).reshape(8, 8, 8)
+    check = check_transfer_function(cube(data), constant([2.0, 3.0], [0.0, 0.8]))
+    assert any("transparent over the whole data range" in w for w in check.warnings)
+    assert check.verdict.startswith("invisible")
+
+
+def test_opaque_function_warns():
+    data = np.linspace(0, 1, 8**3).reshape(8, 8, 8)
+    check = check_transfer_function(cube(data), constant([0.0, 1.0], [1.0, 1.0]))
+    assert any("opaque over the whole data range" in w for w in check.warnings)
+
+
+def test_faint_material_is_nearly_invisible():
+    data = np.zeros((8, 8, 8))
+    data[3:5, 3:5, 3:5] = 1.0
+    check = check_transfer_function(cube(data), constant([0.0, 0.5, 1.0], [0.0, 0.0, 0.005]))
+    assert check.verdict.startswith("nearly invisible")
+    assert check.nonzero_fraction == pytest.approx(8 / 512)
+
+
+def test_dense_material_shows_only_its_shell():
+    data = np.ones((40, 40, 40))
+    check = check_transfer_function(cube(data), constant([0.0, 2.0], [0.99, 0.99]))
+    assert check.verdict.startswith("only the outer shell")
+
+
+def test_report_plot_is_written(tmp_path):
+    data = np.linspace(0, 1, 8**3).reshape(8, 8, 8)
+    volume = cube(data)
+    tf = constant([0.2, 0.8], [0.0, 0.5])
+    path = tmp_path / "report.png"
+    plot_transfer_check(volume, tf, check_transfer_function(volume, tf), path)
+    import imageio.v3 as iio
+
+    image = iio.imread(path)
+    assert image.shape[0] > 300 and image.shape[1] > 600
+    assert [p.name for p in tmp_path.iterdir()] == ["report.png"]

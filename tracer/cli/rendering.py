@@ -1,0 +1,147 @@
+"""``render``, ``preview`` and ``merge``."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from .common import console, error_console, reports_user_errors
+
+
+def register(app: typer.Typer) -> None:
+    app.command("render")(render)
+    app.command("preview")(preview)
+    app.command("merge")(merge)
+
+
+@reports_user_errors
+def render(
+    scene: Annotated[Path, typer.Argument(help="Scene TOML file.")],
+    spp: Annotated[Optional[int], typer.Option(help="Samples per pixel (the cap when --target-error is given).")] = None,
+    seed: Annotated[Optional[int], typer.Option(help="Seed of the counter-based generator.")] = None,
+    sample_offset: Annotated[int, typer.Option(help="First sample index; disjoint ranges of one seed merge exactly.")] = 0,
+    out: Annotated[Path, typer.Option("--out", help="Output folder.")] = Path("renders"),
+    name: Annotated[Optional[str], typer.Option(help="Base name of the files (default: the scene's file name).")] = None,
+    format: Annotated[str, typer.Option("--format", help="Comma-separated: npz (always written), exr, png.")] = "npz,png",
+    width: Annotated[Optional[int], typer.Option(help="Image width in pixels.")] = None,
+    height: Annotated[Optional[int], typer.Option(help="Image height in pixels.")] = None,
+    target_error: Annotated[Optional[float], typer.Option(help="Stop when the mean relative standard error of radiance over covered pixels is at most this (e.g. 0.01).")] = None,
+    time_limit: Annotated[Optional[float], typer.Option(help="Stop after the pass that crosses this many seconds.")] = None,
+    checkpoint_every: Annotated[Optional[float], typer.Option(help="Write a checkpoint every this many seconds.")] = None,
+    resume: Annotated[bool, typer.Option("--resume", help="Continue from the checkpoint in --out (bit-exact).")] = False,
+    sheet: Annotated[bool, typer.Option("--sheet", help="Also write NAME.sheet.png with every buffer, labelled.")] = False,
+    exposure: Annotated[float, typer.Option(help="Exposure in stops for the PNG preview and sheet.")] = 0.0,
+    threads: Annotated[Optional[int], typer.Option(help="numba threads (results do not depend on it).")] = None,
+):
+    """Path-trace a scene and write its buffers (NPZ always; EXR and PNG as asked).
+
+    Ctrl-C writes what is done as a valid render with its true spp (and a checkpoint to --resume from).
+    """
+    import time
+
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
+
+    from ..outputs import parse_formats, save_frame
+    from ..rendering import render as render_scene
+    from ..scene import load_scene
+
+    formats = parse_formats(format)
+    loaded = load_scene(scene).with_overrides(spp=spp, seed=seed, width=width, height=height)
+    name = name or scene.stem
+    checkpoint = out / f"{name}.checkpoint.npz"
+    if not resume and checkpoint_every is None:
+        checkpoint_path = None
+    else:
+        checkpoint_path = checkpoint
+    if checkpoint_every is not None and checkpoint_every <= 0:
+        from ..errors import UserError
+
+        raise UserError(f"--checkpoint-every: must be > 0 seconds, got {checkpoint_every}")
+    if checkpoint_path is not None:
+        out.mkdir(parents=True, exist_ok=True)
+    cam = loaded.camera
+    total = loaded.settings.spp
+    columns = [TextColumn("[bold]{task.description}"), BarColumn(), TextColumn("{task.fields[status]}"),
+               TimeElapsedColumn(), TextColumn("eta"), TimeRemainingColumn()]
+    with Progress(*columns, console=error_console, transient=False) as progress:
+        task = progress.add_task(f"{name} {cam.width}x{cam.height}", total=None if target_error else total,
+                                 status="compiling / loading kernels")
+        started = time.perf_counter()
+
+        def report(state):
+            seconds = max(state.elapsed_seconds, 1e-9)
+            status = f"{state.spp_done}/{state.spp_total} spp, {state.samples_done / seconds / 1e6:.2f} M paths/s"
+            if state.relative_error is not None:
+                status += f", rel. error {state.relative_error:.4f}"
+            progress.update(task, completed=state.spp_done, status=status)
+
+        frame = render_scene(loaded, sample_offset=sample_offset, target_error=target_error, time_limit=time_limit,
+                             threads=threads, on_progress=report, checkpoint_path=checkpoint_path,
+                             checkpoint_every=checkpoint_every, resume=resume)
+        progress.update(task, completed=frame.spp, total=frame.spp if target_error else total)
+    paths = save_frame(frame, out, name, formats, exposure, sheet)
+    meta = frame.meta
+    line = f"{frame.spp} spp in {meta['render_seconds']:.2f} s ({meta['stopped']})"
+    if "relative_error" in meta:
+        line += f", mean relative error {meta['relative_error']:.4f}"
+    console.print(line)
+    for path in paths:
+        console.print(f"  wrote {path}")
+    if meta["stopped"] == "interrupted":
+        error_console.print(f"[yellow]interrupted:[/yellow] wrote the {frame.spp} spp done; "
+                            f"continue with --resume (checkpoint {checkpoint})")
+        raise typer.Exit(code=130)
+    del started
+
+
+@reports_user_errors
+def preview(
+    scene: Annotated[Path, typer.Argument(help="Scene TOML file.")],
+    spp: Annotated[int, typer.Option(min=1, help="Samples per pixel of the preview.")] = 4,
+    out: Annotated[Path, typer.Option("--out", help="Output folder.")] = Path("renders"),
+    name: Annotated[Optional[str], typer.Option(help="Base name (default: SCENE.preview).")] = None,
+    exposure: Annotated[float, typer.Option(help="Exposure in stops for the PNG.")] = 0.0,
+    threads: Annotated[Optional[int], typer.Option(help="numba threads.")] = None,
+):
+    """A quarter-resolution, few-spp render in seconds, with the predicted time of the full render."""
+    from ..io.png import write_preview
+    from ..rendering import preview_scene
+    from ..scene import load_scene
+
+    loaded = load_scene(scene)
+    frame, per_spp, predicted = preview_scene(loaded, spp=spp, threads=threads)
+    path = write_preview(out / f"{name or scene.stem + '.preview'}.png", frame["radiance"], exposure)
+    cam = loaded.camera
+    console.print(f"preview {frame.meta['width']}x{frame.meta['height']} at {spp} spp")
+    console.print(f"  cost at full size {cam.width}x{cam.height}: {per_spp:.3f} s per spp")
+    console.print(f"  predicted full render at {loaded.settings.spp} spp: {_duration(predicted)}")
+    console.print(f"  wrote {path}")
+
+
+@reports_user_errors
+def merge(
+    inputs: Annotated[list[Path], typer.Argument(help="Render NPZ files of one scene and seed, disjoint sample ranges.")],
+    out: Annotated[Path, typer.Option("--out", help="Output path (NAME or NAME.npz); a PNG preview is written beside it.")],
+):
+    """Merge renders with disjoint sample ranges into the render of their union."""
+    from ..accumulate import merge_frames
+    from ..io.npz import read_npz, write_npz
+    from ..io.png import write_preview
+
+    frames = [read_npz(path) for path in inputs]
+    merged = merge_frames(frames)
+    target = out if out.suffix == ".npz" else out.with_name(out.name + ".npz")
+    write_npz(target, merged)
+    write_preview(target.with_suffix(".png"), merged["radiance"])
+    console.print(f"merged {len(frames)} renders: {merged.spp} spp, samples {merged.meta['merged_from']}")
+    console.print(f"  wrote {target}")
+
+
+def _duration(seconds: float) -> str:
+    if seconds < 120:
+        return f"{seconds:.1f} s"
+    if seconds < 7200:
+        return f"{seconds / 60:.1f} min"
+    return f"{seconds / 3600:.1f} h"
