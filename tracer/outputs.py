@@ -10,6 +10,22 @@ from .errors import UserError
 FORMATS = ("npz", "exr", "png")
 
 
+def check_output_folder(folder) -> None:
+    """Refuse, before any work, an output folder that cannot be created or written."""
+    import os
+
+    folder = Path(folder)
+    probe = folder
+    while not probe.exists():
+        if probe.parent == probe:
+            break
+        probe = probe.parent
+    if not probe.is_dir():
+        raise UserError(f"{folder}: cannot create the output folder: {probe} is not a folder")
+    if not os.access(probe, os.W_OK | os.X_OK):
+        raise UserError(f"{folder}: output folder is not writable ({probe})")
+
+
 def parse_formats(text: str) -> tuple[str, ...]:
     formats = tuple(dict.fromkeys(part.strip().lower() for part in text.split(",") if part.strip()))
     unknown = [f for f in formats if f not in FORMATS]

@@ -74,6 +74,17 @@ def _occupancy(signed_distance, voxel_mm):
     return np.clip(0.5 - signed_distance / voxel_mm, 0.0, 1.0)
 
 
+def _blur(values):
+    """A [1, 2, 1] / 4 binomial blur along each axis (a small point-spread function), edges repeated."""
+    out = np.asarray(values, dtype=np.float64)
+    for axis in range(3):
+        padded = np.concatenate([np.take(out, [0], axis), out, np.take(out, [-1], axis)], axis=axis)
+        n = out.shape[axis]
+        out = 0.25 * np.take(padded, range(0, n), axis) + 0.5 * np.take(padded, range(1, n + 1), axis) \
+            + 0.25 * np.take(padded, range(2, n + 2), axis)
+    return out
+
+
 def _ellipsoid(x, y, z, centre, radii):
     q = np.sqrt(((x - centre[0]) / radii[0]) ** 2 + ((y - centre[1]) / radii[1]) ** 2 + ((z - centre[2]) / radii[2]) ** 2)
     return (q - 1.0) * min(radii)
@@ -111,7 +122,7 @@ def figurine(seed: int = 11) -> Sample:
     pr = 0.4 + 1.1 * uniform_numpy(seed, counter, 1, 3)
     for cx, cy, cz, r in zip(px, py, pz, pr):
         occupancy = occupancy * (1 - _occupancy(_ellipsoid(x, y, z, (cx, cy, cz), (r, r, r)), voxel))
-    hu = AIR_HU + occupancy * (CLAY_HU - AIR_HU)
+    hu = _blur(AIR_HU + occupancy * (CLAY_HU - AIR_HU))    # the scanner's point-spread function
     # the armature: a 1.2 mm steel wire up the spine and across the shoulders
     wire = np.minimum(_segment(x, y, z, (0, 1, 4), (0, 1, 41), 0.6), _segment(x, y, z, (-9, 1, 30), (9, 1, 30), 0.6))
     metal = _occupancy(wire, voxel)

@@ -197,14 +197,20 @@ def parse_scene(data: dict, path: Path | str, base_dir: Path | None = None) -> S
     origin = volume_table.vector("origin_mm", None)
     volume_table.finish()
     resolved = (base / volume_path) if not Path(volume_path).is_absolute() else Path(volume_path)
-    volume = load_volume(resolved, spacing_mm=spacing, origin_mm=origin)
+    try:
+        volume = load_volume(resolved, spacing_mm=spacing, origin_mm=origin)
+    except UserError as error:
+        raise UserError(f"{volume_table.where('path')}: {error}") from None
 
     tf_table = top.table("transfer_function")
     if tf_table.has("path"):
         tf_path = tf_table.string("path")
         tf_table.finish()
         tf_resolved = (base / tf_path) if not Path(tf_path).is_absolute() else Path(tf_path)
-        transfer_function = load_transfer_function(tf_resolved)
+        try:
+            transfer_function = load_transfer_function(tf_resolved)
+        except UserError as error:
+            raise UserError(f"{tf_table.where('path')}: {error}") from None
     else:
         transfer_function = parse_transfer_function(dict(tf_table.data), f"{path} [transfer_function]")
         tf_table.used.update(tf_table.data)
@@ -294,7 +300,10 @@ def _parse_environment(table, base: Path):
         resolved = base / image_path if not Path(image_path).is_absolute() else Path(image_path)
         from .io.exr import read_environment
 
-        image = read_environment(resolved)
+        try:
+            image = read_environment(resolved)
+        except UserError as error:
+            raise UserError(f"{table.where('path')}: {error}") from None
         colors = (black, black, black)
     background_value = table.raw("background", "environment")
     if background_value == "environment":

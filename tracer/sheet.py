@@ -40,8 +40,11 @@ def write_contact_sheet(frame: Frame, path, exposure: float = 0.0, title: str | 
         if key in ("radiance", "albedo"):
             axis.imshow(to_display(data, exposure if key == "radiance" else 0.0))
         elif key == "radiance_variance":
-            values = np.log10(np.maximum(data.mean(axis=2), 1e-12))
-            colorbar = axis.imshow(values, cmap="magma", vmin=max(values.min(), np.percentile(values, 1)))
+            variance = data.mean(axis=2)
+            positive = variance[variance > 0]
+            floor = np.percentile(positive, 1) if positive.size else 1e-12
+            values = np.log10(np.maximum(variance, floor))
+            colorbar = axis.imshow(values, cmap="magma")
         elif key.endswith("_normal"):
             axis.imshow(np.clip(data * 0.5 + 0.5, 0, 1) * (np.linalg.norm(data, axis=2, keepdims=True) > 0))
         elif key.endswith("_position"):

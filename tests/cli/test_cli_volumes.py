@@ -100,3 +100,17 @@ def test_samples_command_writes_the_three_volumes(tmp_path):
     result = invoke("samples", "--out", tmp_path / "demo")
     assert result.exit_code == 0, result.output
     assert sorted(p.name for p in (tmp_path / "demo").iterdir()) == ["figurine.nrrd", "lattice.nrrd", "plume.nrrd"]
+
+
+def test_every_bad_volume_is_one_line_from_tf_check_and_writes_nothing(tmp_path, root, monkeypatch):
+    from tests.test_volume import BAD_VOLUMES
+
+    monkeypatch.setenv("TRACER_MEMORY_BUDGET_MB", "1024")
+    tf = root / "transfer_functions" / "plume_smoke.toml"
+    for case, (make, expected) in sorted(BAD_VOLUMES.items()):
+        folder = tmp_path / case.replace(" ", "_")
+        folder.mkdir()
+        path = make(folder)
+        out = tmp_path / f"{case}.png"
+        assert_user_error(invoke("tf-check", path, tf, "--out", out), expected)
+        assert not out.exists(), case

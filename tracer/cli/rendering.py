@@ -43,7 +43,7 @@ def render(
 
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
-    from ..outputs import parse_formats, save_frame
+    from ..outputs import check_output_folder, parse_formats, save_frame
     from ..rendering import render as render_scene
     from ..scene import load_scene
 
@@ -59,6 +59,11 @@ def render(
         from ..errors import UserError
 
         raise UserError(f"--checkpoint-every: must be > 0 seconds, got {checkpoint_every}")
+    check_output_folder(out)
+    if resume and not checkpoint.exists():
+        from ..errors import UserError
+
+        raise UserError(f"{checkpoint}: no checkpoint to resume from (render with --checkpoint-every first)")
     if checkpoint_path is not None:
         out.mkdir(parents=True, exist_ok=True)
     cam = loaded.camera
@@ -107,10 +112,12 @@ def preview(
 ):
     """A quarter-resolution, few-spp render in seconds, with the predicted time of the full render."""
     from ..io.png import write_preview
+    from ..outputs import check_output_folder
     from ..rendering import preview_scene
     from ..scene import load_scene
 
     loaded = load_scene(scene)
+    check_output_folder(out)
     frame, per_spp, predicted = preview_scene(loaded, spp=spp, threads=threads)
     path = write_preview(out / f"{name or scene.stem + '.preview'}.png", frame["radiance"], exposure)
     cam = loaded.camera
@@ -130,6 +137,9 @@ def merge(
     from ..io.npz import read_npz, write_npz
     from ..io.png import write_preview
 
+    from ..outputs import check_output_folder
+
+    check_output_folder(out.parent)
     frames = [read_npz(path) for path in inputs]
     merged = merge_frames(frames)
     target = out if out.suffix == ".npz" else out.with_name(out.name + ".npz")
