@@ -36,18 +36,6 @@ class Accumulator:
     def next_sample(self) -> int:
         return self.sample_offset + self.n_samples
 
-    def radiance_error(self) -> tuple[np.ndarray, np.ndarray]:
-        """Per-pixel relative standard error of the mean radiance, and the covered-pixel mask.
-
-        Relative error: ``sqrt(mean over channels of variance) / max(mean radiance, 1e-3)``.
-        Covered: at least one sample had a scatter event.
-        """
-        buffers = self.to_buffers()
-        mean = buffers["radiance"].astype(np.float64).mean(axis=2)
-        variance = buffers["radiance_variance"].astype(np.float64).mean(axis=2)
-        error = np.sqrt(variance) / np.maximum(mean, 1e-3)
-        return error, buffers["event1_hit"] > 0
-
     def to_buffers(self) -> dict[str, np.ndarray]:
         n = self.n_samples
         s = self.sums

@@ -68,6 +68,7 @@ class Frame:
 
     buffers: dict[str, np.ndarray]
     meta: dict = field(default_factory=dict)
+    accumulator: object = field(default=None, repr=False)   # the float64 sums, when rendered in this process
 
     def __getitem__(self, key: str) -> np.ndarray:
         return self.buffers[key]

@@ -25,6 +25,14 @@ class Camera:
     fov_deg: float = 30.0
     width: int = 512
     height: int = 512
+    crop: tuple[int, int, int, int] | None = None   # (row, col, height, width) window of the full image
+
+    @property
+    def image_size(self) -> tuple[int, int]:
+        """(height, width) of the rendered image: the crop window, or the full image."""
+        if self.crop is None:
+            return self.height, self.width
+        return int(self.crop[2]), int(self.crop[3])
 
     def frame(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Unit forward, right and up vectors."""
@@ -42,17 +50,30 @@ class Camera:
         return forward, right, up
 
     def to_array(self) -> np.ndarray:
-        """(4, 3) float64 rows: position, forward, right and up scaled to the image plane at distance 1."""
+        """(4, 3) float64 rows: position, the direction through the centre of the rendered image, and right
+        and up scaled to the rendered image's half extent on the image plane at distance 1.
+
+        A crop window is folded in here: the kernel maps the window's pixels to [-1, 1] and this
+        array maps that onto the window's part of the full image plane.
+        """
         forward, right, up = self.frame()
         half_height = math.tan(math.radians(self.fov_deg) / 2.0)
         half_width = half_height * self.width / self.height
-        return np.array([self.position, forward, right * half_width, up * half_height], dtype=np.float64)
+        centre = forward
+        if self.crop is not None:
+            row, col, crop_height, crop_width = self.crop
+            centre = forward + right * half_width * ((2.0 * col + crop_width) / self.width - 1.0) \
+                + up * half_height * (1.0 - (2.0 * row + crop_height) / self.height)
+            half_width *= crop_width / self.width
+            half_height *= crop_height / self.height
+        return np.array([self.position, centre, right * half_width, up * half_height], dtype=np.float64)
 
     def ray_directions(self, rows, cols, jitter_row=0.5, jitter_col=0.5) -> np.ndarray:
         """(..., 3) unit directions through points of pixels (rows, cols); jitter in [0, 1) inside the pixel."""
         array = self.to_array()
-        sx = (np.asarray(cols) + jitter_col) / self.width * 2.0 - 1.0
-        sy = 1.0 - (np.asarray(rows) + jitter_row) / self.height * 2.0
+        height, width = self.image_size
+        sx = (np.asarray(cols) + jitter_col) / width * 2.0 - 1.0
+        sy = 1.0 - (np.asarray(rows) + jitter_row) / height * 2.0
         d = array[1] + sx[..., None] * array[2] + sy[..., None] * array[3]
         return d / np.linalg.norm(d, axis=-1, keepdims=True)
 

@@ -67,7 +67,8 @@ def kernel_arguments(scene: Scene) -> tuple:
 
 
 def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sample_offset: int = 0,
-           target_error: float | None = None, time_limit: float | None = None, threads: int | None = None,
+           target_error: float | None = None, target_psnr: float | None = None, time_limit: float | None = None,
+           threads: int | None = None,
            on_progress: Callable[[RenderProgress], None] | None = None, checkpoint_path=None,
            checkpoint_every: float | None = None, resume: bool = False, pass_seconds: float = 0.4) -> Frame:
     """Path-trace ``scene`` and return its buffers.
@@ -82,6 +83,9 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
         First sample index; renders with the same seed and disjoint ranges can be merged.
     target_error : float, optional
         Stop once the mean relative standard error of radiance over covered pixels is at most this.
+    target_psnr : float, optional
+        Stop once the PSNR (dB, peak 1 on linear radiance) of the render against the converged image,
+        as implied by its variance buffer, reaches this (see :func:`residual_noise`).
     time_limit : float, optional
         Stop after the pass that crosses this many seconds.
     threads : int, optional
@@ -108,7 +112,8 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
 
     settings = scene.settings
     spp = settings.spp if spp is None else int(spp)
-    if target_error is not None and spp == settings.spp and spp < DEFAULT_TARGET_ERROR_SPP_CAP:
+    targeted = target_error is not None or target_psnr is not None
+    if targeted and spp == settings.spp and spp < DEFAULT_TARGET_ERROR_SPP_CAP:
         spp_cap = DEFAULT_TARGET_ERROR_SPP_CAP
     else:
         spp_cap = spp
@@ -120,7 +125,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
     if target_error is not None and not target_error > 0:
         raise UserError(f"target error must be > 0, got {target_error}")
     scene = scene.with_overrides(seed=seed)
-    height, width = scene.camera.height, scene.camera.width
+    height, width = scene.camera.image_size
     n_levels = len(settings.feature_levels)
     fingerprint = _fingerprint(scene)
 
@@ -141,6 +146,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
     spp_per_pass = 1
     seconds_per_row_sample = None
     error = None
+    noise = None
     try:
         with num_threads(threads):
             while accumulator.n_samples < spp_cap:
@@ -165,9 +171,9 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
                     raise
                 accumulator.n_samples += n
                 elapsed = time.perf_counter() - start
-                if target_error is not None and accumulator.n_samples >= 2:
-                    per_pixel, covered = accumulator.radiance_error()
-                    error = float(per_pixel[covered].mean()) if covered.any() else 0.0
+                if targeted and accumulator.n_samples >= 2:
+                    noise = residual_noise(accumulator.to_buffers())
+                    error = noise.mean_relative_error
                 if on_progress is not None:
                     on_progress(RenderProgress(accumulator.n_samples, spp_cap, accumulator.n_samples * height * width,
                                                elapsed, error))
@@ -177,6 +183,9 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
                     last_checkpoint = time.perf_counter()
                 if target_error is not None and error is not None and error <= target_error:
                     stopped = "target_error"
+                    break
+                if target_psnr is not None and accumulator.n_samples >= 2 and noise.psnr_db >= target_psnr:
+                    stopped = "target_psnr"
                     break
                 if time_limit is not None and elapsed >= time_limit:
                     stopped = "time_limit"
@@ -206,11 +215,42 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
         "width": width, "height": height, "render_seconds": round(seconds, 4),
         "events": settings.events, "step_mm": settings.step_mm, "stopped": stopped,
     }
-    if target_error is not None:
-        per_pixel, covered = accumulator.radiance_error()
-        meta["target_error"] = target_error
-        meta["relative_error"] = float(per_pixel[covered].mean()) if covered.any() else 0.0
-    return Frame(buffers=accumulator.to_buffers(), meta=meta)
+    buffers = accumulator.to_buffers()
+    if targeted:
+        noise = residual_noise(buffers)
+        meta["relative_error"] = noise.mean_relative_error
+        meta["psnr_vs_converged_db"] = noise.psnr_db if math.isfinite(noise.psnr_db) else None
+        if target_error is not None:
+            meta["target_error"] = target_error
+        if target_psnr is not None:
+            meta["target_psnr"] = target_psnr
+    return Frame(buffers=buffers, meta=meta, accumulator=accumulator)
+
+
+@dataclass(frozen=True)
+class ResidualNoise:
+    """How far a render is from its converged image, estimated from its own variance buffer.
+
+    mean_relative_error : mean over covered pixels (event 1 seen at least once) of
+        ``sqrt(mean channel variance) / max(mean radiance, 1e-3)``.
+    psnr_db : ``10 log10(1 / mean variance)`` over all pixels and channels: the expected PSNR
+        (peak 1, linear radiance) of the render against the converged image, since the expected
+        squared error of a mean equals its variance.
+    """
+
+    mean_relative_error: float
+    psnr_db: float
+
+
+def residual_noise(buffers) -> ResidualNoise:
+    mean = np.asarray(buffers["radiance"], dtype=np.float64)
+    variance = np.asarray(buffers["radiance_variance"], dtype=np.float64)
+    covered = np.asarray(buffers["event1_hit"]) > 0
+    relative = np.sqrt(variance.mean(axis=2)) / np.maximum(mean.mean(axis=2), 1e-3)
+    error = float(relative[covered].mean()) if covered.any() else 0.0
+    mse = float(variance.mean())
+    psnr = math.inf if mse <= 0 else 10.0 * math.log10(1.0 / mse)
+    return ResidualNoise(mean_relative_error=error, psnr_db=psnr)
 
 
 def _fingerprint(scene: Scene) -> str:
@@ -260,12 +300,12 @@ def preview_scene(scene: Scene, *, spp: int = 4, threads: int | None = None) -> 
 
     camera = scene.camera
     small = dataclasses.replace(scene, camera=dataclasses.replace(
-        camera, width=max(1, camera.width // 4), height=max(1, camera.height // 4)))
-    warm = dataclasses.replace(scene, camera=dataclasses.replace(camera, width=8, height=8))
+        camera, width=max(1, camera.width // 4), height=max(1, camera.height // 4), crop=None))
+    warm = dataclasses.replace(scene, camera=dataclasses.replace(camera, width=8, height=8, crop=None))
     render(warm, spp=1, threads=threads)
     start = time.perf_counter()
     frame = render(small, spp=spp, threads=threads)
     seconds = time.perf_counter() - start
-    pixel_ratio = (camera.width * camera.height) / (small.camera.width * small.camera.height)
+    pixel_ratio = (camera.image_size[0] * camera.image_size[1]) / (small.camera.width * small.camera.height)
     per_spp = seconds / spp * pixel_ratio
     return frame, per_spp, per_spp * scene.settings.spp

@@ -122,7 +122,7 @@ class Scene:
     def check_budget(self) -> None:
         from .accumulate import n_channels
 
-        n_bytes = self.camera.width * self.camera.height * n_channels(len(self.settings.feature_levels)) * 8 * 2
+        n_bytes = self.camera.image_size[0] * self.camera.image_size[1] * n_channels(len(self.settings.feature_levels)) * 8 * 2
         if n_bytes > memory_budget():
             raise UserError(
                 f"{self.source}: camera.width x camera.height = {self.camera.width} x {self.camera.height} needs "
@@ -137,7 +137,8 @@ class Scene:
             "transfer_function": self.transfer_function.to_dict(),
             "camera": {"position": list(self.camera.position), "target": list(self.camera.target),
                        "up": list(self.camera.up), "fov_deg": self.camera.fov_deg,
-                       "width": self.camera.width, "height": self.camera.height},
+                       "width": self.camera.width, "height": self.camera.height,
+                       **({"crop": list(self.camera.crop)} if self.camera.crop is not None else {})},
             "lights": [light.to_dict() for light in self.lights],
             "environment": self.environment.to_dict(),
             "render": self.settings.to_dict(),

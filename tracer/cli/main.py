@@ -7,7 +7,7 @@ from pathlib import Path
 
 import typer
 
-from . import rendering, volumes
+from . import datasets, rendering, volumes
 from .common import MEDICAL_CAUTION
 
 app = typer.Typer(
@@ -24,6 +24,7 @@ app = typer.Typer(
 )
 volumes.register(app)
 rendering.register(app)
+datasets.register(app)
 
 
 def _ensure_numba_cache() -> None:

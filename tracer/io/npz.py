@@ -14,13 +14,29 @@ from .atomic import atomic_path
 
 
 def write_npz(path, frame: Frame) -> Path:
+    """Write a render as a compressed NPZ, atomically and reproducibly.
+
+    ``numpy.savez_compressed`` stamps each member with the current time, so the same buffers
+    would give different bytes; we write the zip ourselves with a fixed timestamp, so the same
+    render always gives the same file (and the same sha256).
+    """
     path = Path(path)
     arrays = {key: np.ascontiguousarray(value, dtype=np.float32) for key, value in frame.buffers.items()}
     arrays["meta"] = np.array(frame.meta_json())
     with atomic_path(path) as temporary:
-        with open(temporary, "wb") as handle:
-            np.savez_compressed(handle, **arrays)
+        write_arrays(temporary, arrays)
     return path
+
+
+def write_arrays(path, arrays: dict[str, np.ndarray]) -> None:
+    """A deterministic compressed ``.npz`` of named arrays (members in the given order, fixed timestamps)."""
+    with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED, allowZip64=True) as archive:
+        for key, array in arrays.items():
+            info = zipfile.ZipInfo(f"{key}.npy", date_time=(1980, 1, 1, 0, 0, 0))
+            info.compress_type = zipfile.ZIP_DEFLATED
+            info.external_attr = 0o644 << 16
+            with archive.open(info, "w", force_zip64=True) as member:
+                np.lib.format.write_array(member, np.asanyarray(array), allow_pickle=False)
 
 
 def read_npz(path) -> Frame:

@@ -1,0 +1,117 @@
+"""Running dataset items on Dask distributed.
+
+A local cluster uses processes with one Dask thread each and sets ``NUMBA_NUM_THREADS`` in the
+workers (Dask's nanny does not) so that workers x numba threads match the cores. It binds to
+127.0.0.1 and starts no dashboard unless asked. Tasks are plain functions of this package
+(imported on the worker), never numba dispatchers, and carry paths, not arrays.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import re
+
+from ..errors import UserError
+
+_ADDRESS = re.compile(r"^(tcp|tls)://[A-Za-z0-9_.\-]+:\d{1,5}$|^(tcp|tls)://\[[0-9A-Fa-f:]+\]:\d{1,5}$")
+
+
+def check_scheduler_address(address: str) -> str:
+    if not _ADDRESS.match(address or ""):
+        raise UserError(f"--scheduler: {address!r} is not a scheduler address like tcp://HOST:8786")
+    port = int(address.rsplit(":", 1)[1])
+    if not 0 < port < 65536:
+        raise UserError(f"--scheduler: port {port} out of range")
+    return address
+
+
+@contextlib.contextmanager
+def client_for(workers: int | None, scheduler: str | None, dashboard: bool = False, numba_threads: int | None = None):
+    import logging
+
+    from distributed import Client, LocalCluster
+
+    if scheduler is not None:
+        check_scheduler_address(scheduler)
+        try:
+            client = Client(scheduler, timeout="5s")
+        except (OSError, TimeoutError) as error:
+            raise UserError(f"--scheduler: cannot reach {scheduler}: {error}")
+        try:
+            yield client
+        finally:
+            client.close()
+        return
+    if workers is None or workers < 1:
+        raise UserError(f"--workers: must be at least 1, got {workers}")
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    numba_threads = numba_threads or max(1, cores // workers)
+    env = {"NUMBA_NUM_THREADS": str(numba_threads)}
+    if "NUMBA_CACHE_DIR" in os.environ:
+        env["NUMBA_CACHE_DIR"] = os.environ["NUMBA_CACHE_DIR"]
+    options = dict(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1", env=env,
+                   memory_limit=0)
+    if dashboard:
+        options["dashboard_address"] = "127.0.0.1:8787"
+    else:
+        options["dashboard_address"] = ":0"
+        options["scheduler_kwargs"] = {"dashboard": False}
+    cluster = LocalCluster(**options)
+    client = Client(cluster)
+    try:
+        yield client
+    finally:
+        logger = logging.getLogger("distributed")
+        level = logger.level
+        logger.setLevel(logging.CRITICAL)
+        try:
+            client.close()
+            cluster.close()
+        finally:
+            logger.setLevel(level)
+
+
+def _warm_up() -> bool:
+    """Compile (or load) the kernels once per worker before items arrive."""
+    from tracer._kernels.integrate import render_rows  # noqa: F401
+
+    return True
+
+
+def run_on_cluster(plan, todo, plan_arguments, out_dir, finished, *, workers, scheduler, dashboard,
+                   numba_threads=None) -> None:
+    from distributed import as_completed
+
+    from .run import _finish_record, finish_chunked_reference, render_item_inputs, render_reference_chunk
+
+    with client_for(workers, scheduler, dashboard, numba_threads) as client:
+        client.run(_warm_up)
+        chunked = plan.reference_chunks > 1
+        futures = {}
+        for item in todo:
+            future = client.submit(render_item_inputs, *plan_arguments, item.index, str(out_dir), not chunked,
+                                   pure=False, key=f"inputs-{item.item_id}")
+            futures[future] = (item, "inputs", None)
+            if chunked:
+                for chunk in range(plan.reference_chunks):
+                    future = client.submit(render_reference_chunk, *plan_arguments, item.index, chunk, pure=False,
+                                           key=f"chunk{chunk}-{item.item_id}")
+                    futures[future] = (item, "chunk", chunk)
+        pending: dict[int, dict] = {}
+        for future in as_completed(list(futures)):
+            item, kind, chunk = futures.pop(future)
+            result = future.result()
+            state = pending.setdefault(item.index, {"partial": None, "chunks": []})
+            if kind == "inputs":
+                state["partial"] = result
+            else:
+                state["chunks"].append(result)
+            complete = state["partial"] is not None and (not chunked or len(state["chunks"]) == plan.reference_chunks)
+            if complete:
+                partial = state["partial"]
+                if chunked:
+                    partial["reference"] = finish_chunked_reference(plan, item, state["chunks"], out_dir,
+                                                                    partial["files"])
+                finished(_finish_record(plan, item, partial, out_dir))
+                del pending[item.index]
