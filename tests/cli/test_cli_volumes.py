@@ -8,7 +8,7 @@ import nrrd
 
 from .cli_helpers import assert_user_error, invoke
 
-DESIGN_COMMANDS_SO_FAR = ["info", "tf-check", "preview", "render", "merge", "dataset", "samples"]
+DESIGN_COMMANDS_SO_FAR = ["info", "tf-check", "preview", "render", "merge", "dataset", "score", "denoise", "samples"]
 
 
 def test_help_lists_every_command_and_the_medical_caution():

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import typer
 
-from . import datasets, rendering, volumes
+from . import datasets, rendering, scoring, volumes
 from .common import MEDICAL_CAUTION
 
 app = typer.Typer(
@@ -25,6 +25,7 @@ app = typer.Typer(
 volumes.register(app)
 rendering.register(app)
 datasets.register(app)
+scoring.register(app)
 
 
 def _ensure_numba_cache() -> None:

@@ -1,0 +1,153 @@
+"""``score``, ``score-dataset`` and ``denoise``."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from .common import console, reports_user_errors
+
+
+def register(app: typer.Typer) -> None:
+    app.command("score")(score)
+    app.command("score-dataset")(score_dataset)
+    app.command("denoise")(denoise)
+
+
+def _fmt(value, pattern="{:.2f}"):
+    return "n/a" if value is None else pattern.format(value)
+
+
+@reports_user_errors
+def score(
+    reference: Annotated[Path, typer.Argument(help="Reference render (.npz or .exr).")],
+    candidate: Annotated[Path, typer.Argument(help="Image to score (.npz with 'radiance', or .exr).")],
+    ladder: Annotated[Optional[list[Path]], typer.Option(help="Plain renders of the same view at 1, 2, 4, ... spp "
+                      "(independent seeds), or a dataset item folder; repeat the option.")] = None,
+    seconds: Annotated[Optional[float], typer.Option(help="The candidate's time: its input's render time plus the "
+                       "denoiser's, for the speedup.")] = None,
+    exposure: Annotated[float, typer.Option(help="Exposure in stops before the sRGB curve (PSNR, SSIM).")] = 0.0,
+    covered_only: Annotated[bool, typer.Option("--covered-only", help="Score only pixels where the reference saw a scatter event.")] = False,
+    json_out: Annotated[Optional[Path], typer.Option("--json", help="Write the scores as JSON here.")] = None,
+    plot: Annotated[Optional[Path], typer.Option(help="Write PSNR against spp and an error heat map here (PNG).")] = None,
+):
+    """Score a denoised image against a reference: PSNR and SSIM (display-referred: exposure, clamp, sRGB),
+    MSE and relative MSE (linear); with --ladder, the equal-quality spp and, with --seconds, the speedup."""
+    import json
+
+    from ..io.atomic import atomic_path
+    from ..score import plot_report, read_radiance, score_files
+
+    report = score_files(reference, candidate, ladder=ladder or (), seconds=seconds, exposure=exposure,
+                         covered_only=covered_only)
+    s = report.scores
+    console.print(f"[bold]{candidate.name}[/bold] against {reference.name} "
+                  f"({s.n_pixels} {'covered ' if s.covered_only else ''}pixels, exposure {exposure:+g})")
+    console.print(f"  PSNR            {s.psnr_db:.2f} dB   (display-referred, sRGB, peak 1)")
+    console.print(f"  SSIM            {s.ssim:.4f}      (Wang et al. 2004; 11x11 Gaussian window, sigma 1.5, K1 0.01, K2 0.03)")
+    console.print(f"  MSE             {s.mse:.4g}    (linear radiance)")
+    console.print(f"  relative MSE    {s.relative_mse:.4g}    (linear, / (reference^2 + 0.01))")
+    if report.ladder:
+        console.print("  ladder          " + ", ".join(f"{p.spp} spp {p.psnr_db:.2f} dB" for p in report.ladder))
+        console.print(f"  equal quality   {report.equal_quality_spp:.1f} spp" + (" (extrapolated)" if report.extrapolated else ""))
+        if report.speedup is not None:
+            console.print(f"  speedup         {report.speedup:.1f}x ({report.equal_quality_spp:.1f} spp x "
+                          f"{report.seconds_per_spp:.3g} s/spp vs {report.candidate_seconds:.3g} s)")
+    if json_out is not None:
+        with atomic_path(json_out) as temporary:
+            temporary.write_text(json.dumps(report.as_dict(), indent=2))
+        console.print(f"  wrote {json_out}")
+    if plot is not None:
+        plot_report(report, read_radiance(reference)[0], read_radiance(candidate)[0], plot,
+                    title=f"{candidate.name}", exposure=exposure)
+        console.print(f"  wrote {plot}")
+
+
+@reports_user_errors
+def score_dataset(
+    folder: Annotated[Path, typer.Argument(help="Dataset folder (with manifest.jsonl).")],
+    predictions: Annotated[Path, typer.Option(help="Folder with ITEM_ID.npz (key 'radiance') or ITEM_ID.exr per item.")],
+    input_spp: Annotated[Optional[int], typer.Option(help="The input spp the predictions were made from (adds its render time).")] = None,
+    denoise_seconds: Annotated[Optional[float], typer.Option(help="The denoiser's time per item, for the speedup.")] = None,
+    exposure: Annotated[float, typer.Option(help="Exposure in stops before the sRGB curve.")] = 0.0,
+    covered_only: Annotated[bool, typer.Option("--covered-only", help="Score only covered pixels.")] = False,
+    csv: Annotated[Optional[Path], typer.Option(help="Write per-item and per-split rows here (CSV).")] = None,
+):
+    """Score a denoiser's predictions for every item of a dataset, with per-split aggregates."""
+    import io
+
+    from rich.table import Table
+
+    from ..io.atomic import atomic_path
+    from ..score import aggregate
+    from ..score import score_dataset as run
+
+    items = run(folder, predictions, input_spp=input_spp, denoise_seconds=denoise_seconds, exposure=exposure,
+                covered_only=covered_only)
+    summary = aggregate(items)
+    table = Table(title=f"{folder.name}: {len(items)} items")
+    for column in ("split", "items", "PSNR dB", "SSIM", "rel. MSE", "equal-quality spp", "speedup"):
+        table.add_column(column, justify="right" if column != "split" else "left")
+    for name, row in summary.items():
+        table.add_row(name, str(row["items"]), f"{row['psnr_db']:.2f}", f"{row['ssim']:.4f}", f"{row['relative_mse']:.4g}",
+                      _fmt(row["equal_quality_spp"], "{:.1f}"), _fmt(row["speedup"], "{:.1f}x"))
+    console.print(table)
+    if csv is not None:
+        buffer = io.StringIO()
+        buffer.write("kind,id,split,psnr_db,ssim,mse,relative_mse,equal_quality_spp,extrapolated,speedup\n")
+        for item in items:
+            r, s = item.report, item.report.scores
+            buffer.write(f"item,{item.item_id},{item.split},{s.psnr_db:.4f},{s.ssim:.5f},{s.mse:.6g},{s.relative_mse:.6g},"
+                         f"{_fmt(r.equal_quality_spp, '{:.3f}')},{r.extrapolated},{_fmt(r.speedup, '{:.3f}')}\n")
+        for name, row in summary.items():
+            buffer.write(f"split,,{name},{row['psnr_db']:.4f},{row['ssim']:.5f},,{row['relative_mse']:.6g},"
+                         f"{_fmt(row['equal_quality_spp'], '{:.3f}')},,{_fmt(row['speedup'], '{:.3f}')}\n")
+        with atomic_path(csv) as temporary:
+            temporary.write_text(buffer.getvalue())
+        console.print(f"wrote {csv}")
+
+
+@reports_user_errors
+def denoise(
+    input: Annotated[Path, typer.Argument(help="A render NPZ with its feature buffers.")],
+    out: Annotated[Path, typer.Option("--out", help="Output NPZ (a PNG preview is written beside it).")],
+    color_only: Annotated[bool, typer.Option("--color-only", help="Filter without the feature buffers (radiance and variance only).")] = False,
+    iterations: Annotated[int, typer.Option(min=1, max=10, help="a-trous passes (holes 1, 2, 4, ...).")] = 5,
+    sigma_luminance: Annotated[float, typer.Option(help="Luminance edge-stopping, in noise standard deviations.")] = 4.0,
+    sigma_normal: Annotated[float, typer.Option(help="Normal edge-stopping (0: off).")] = 0.35,
+    sigma_albedo: Annotated[float, typer.Option(help="Albedo edge-stopping (0: off).")] = 0.1,
+    sigma_depth: Annotated[float, typer.Option(help="Depth edge-stopping, relative to the local depth gradient (0: off).")] = 0.0,
+    sigma_position: Annotated[float, typer.Option(help="Position edge-stopping in mm (0: off).")] = 0.0,
+    exposure: Annotated[float, typer.Option(help="Exposure in stops for the PNG preview.")] = 0.0,
+    threads: Annotated[Optional[int], typer.Option(help="numba threads.")] = None,
+):
+    """The classical feature-guided baseline: the edge-avoiding a-trous wavelet filter (Dammertz et al. 2010),
+    stopping at edges of normals, albedo, depth or positions, guided by the variance buffer."""
+    from ..buffers import Frame
+    from ..denoise import DenoiseSettings
+    from ..denoise import denoise as run
+    from ..io.npz import read_npz, write_npz
+    from ..io.png import write_preview
+    from ..outputs import check_output_folder
+
+    frame = read_npz(input)
+    target = out if out.suffix == ".npz" else out.with_name(out.name + ".npz")
+    check_output_folder(target.parent)
+    settings = DenoiseSettings(iterations=iterations, sigma_luminance=sigma_luminance, sigma_normal=sigma_normal,
+                               sigma_albedo=sigma_albedo, sigma_depth=sigma_depth, sigma_position_mm=sigma_position,
+                               color_only=color_only)
+    result = run(frame, settings, threads=threads)
+    buffers = dict(frame.buffers)
+    buffers["radiance"] = result.radiance
+    meta = dict(frame.meta)
+    meta.pop("source_file", None)
+    meta["denoised"] = {"method": "a-trous (Dammertz et al. 2010)", "color_only": color_only,
+                        "seconds": round(result.seconds, 4), "variance": result.variance_source,
+                        "settings": settings.__dict__}
+    write_npz(target, Frame(buffers=buffers, meta=meta))
+    write_preview(target.with_suffix(".png"), result.radiance, exposure)
+    console.print(f"filtered {input.name} in {result.seconds:.3f} s ({'colour only' if color_only else 'feature-guided'}, "
+                  f"noise from the {result.variance_source} variance)")
+    console.print(f"  wrote {target}")
