@@ -41,11 +41,16 @@ class RenderProgress:
     relative_error: float | None
 
 
-def kernel_arguments(scene: Scene) -> tuple:
-    """The scene as the plain arrays and codes of :func:`tracer._kernels.integrate.render_rows` (before rows/samples/acc)."""
+def kernel_arguments(scene: Scene, skipping: bool = True) -> tuple:
+    """The scene as the plain arrays and codes of :func:`tracer._kernels.integrate.render_rows` (before rows/samples/acc).
+
+    The macrocell grid of the current transfer function is built every time (exact: empty cells
+    have zero extinction everywhere); ``skipping`` decides whether rays step over empty cells.
+    """
     volume = scene.volume
     low, high = volume.value_range
     transfer = scene.transfer_function.bake(low, high)
+    cells = macrocells(volume.data, transfer)
     settings = scene.settings
     lights = np.zeros((len(scene.lights), 7))
     for index, light in enumerate(scene.lights):
@@ -58,19 +63,30 @@ def kernel_arguments(scene: Scene) -> tuple:
     value_range = max(high - low, 1e-12)
     gradient_scale = float(np.mean(volume.spacing)) / (value_range * settings.surface_gradient)
     return (
-        volume.to_arrays(), transfer, scene.camera.to_array(), lights,
+        volume.to_arrays(), transfer, cells, scene.camera.to_array(), lights,
         ENVIRONMENT_CODES[environment.kind], np.asarray(environment.colors, dtype=np.float64),
         np.ascontiguousarray(image, dtype=np.float32), background, environment.background is None,
         SHADING_CODES[settings.shading], settings.events, np.asarray(settings.feature_levels, dtype=np.float64),
         float(settings.step_mm), float(settings.phase_g), gradient_scale,
-    )
+    ), bool(skipping)
+
+
+def macrocells(field: np.ndarray, transfer) -> np.ndarray:
+    """(ceil((nx-1)/8), ...) float32: the largest extinction inside each 8^3-voxel macrocell."""
+    from ._kernels.integrate import CELL, build_macrocells
+
+    shape = tuple(max(1, -(-(n - 1) // CELL)) for n in field.shape)
+    out = np.empty(shape, np.float32)
+    build_macrocells(field, transfer.extinction, transfer.lookup, out)
+    return out
 
 
 def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sample_offset: int = 0,
            target_error: float | None = None, target_psnr: float | None = None, time_limit: float | None = None,
            threads: int | None = None,
            on_progress: Callable[[RenderProgress], None] | None = None, checkpoint_path=None,
-           checkpoint_every: float | None = None, resume: bool = False, pass_seconds: float = 0.4) -> Frame:
+           checkpoint_every: float | None = None, resume: bool = False, pass_seconds: float = 0.4,
+           skipping: bool = True) -> Frame:
     """Path-trace ``scene`` and return its buffers.
 
     Parameters
@@ -96,6 +112,8 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
         Where to keep a checkpoint every ``checkpoint_every`` seconds; removed when the render completes.
     resume : bool
         Continue from ``checkpoint_path`` (bit-exact with an uninterrupted render).
+    skipping : bool
+        Step over empty macrocells (exact: the result is bit-identical either way; off only for benchmarks).
 
     Returns
     -------
@@ -127,7 +145,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
     scene = scene.with_overrides(seed=seed)
     height, width = scene.camera.image_size
     n_levels = len(settings.feature_levels)
-    fingerprint = _fingerprint(scene)
+    fingerprint = _fingerprint(scene) if checkpoint_path is not None else ""
 
     accumulator = None
     previous_seconds = 0.0
@@ -138,7 +156,8 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
     if accumulator is None:
         accumulator = Accumulator(height, width, n_levels, sample_offset=sample_offset)
 
-    arguments = kernel_arguments(scene)
+    arguments, skip = kernel_arguments(scene, skipping)
+    counts = np.zeros((height, 2), np.int64)
     start = time.perf_counter()
     last_checkpoint = start
     stopped = "spp"
@@ -157,7 +176,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
                     for r0 in range(0, height, rows_per_call):
                         r1 = min(height, r0 + rows_per_call)
                         t0 = time.perf_counter()
-                        render_rows(*arguments, seed, r0, r1, s0, s0 + n, accumulator.sums)
+                        render_rows(*arguments, seed, r0, r1, s0, s0 + n, skip, accumulator.sums, counts)
                         dt = time.perf_counter() - t0
                         rate = dt / ((r1 - r0) * n)
                         seconds_per_row_sample = rate if seconds_per_row_sample is None else min(rate, 2 * seconds_per_row_sample) * 0.5 + seconds_per_row_sample * 0.5
@@ -214,6 +233,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
         "spp": accumulator.n_samples, "seed": seed, "sample_offset": accumulator.sample_offset,
         "width": width, "height": height, "render_seconds": round(seconds, 4),
         "events": settings.events, "step_mm": settings.step_mm, "stopped": stopped,
+        "field_samples": int(counts[:, 0].sum()), "field_samples_in_nonempty_cells": int(counts[:, 1].sum()),
     }
     buffers = accumulator.to_buffers()
     if targeted:

@@ -22,7 +22,7 @@ from numba import njit, prange
 from ..config import JIT, JIT_PARALLEL
 from .rng import uniform
 from .sampling import (INV_PI, albedo_at, extinction_at, gradient_index, henyey_greenstein,
-                       sample_cosine, sample_henyey_greenstein, trilinear)
+                       sample_cosine, sample_henyey_greenstein, table_position, trilinear)
 
 # integer codes (strings never reach compiled code)
 SHADING_PHASE = 0
@@ -36,6 +36,7 @@ LIGHT_POINT = 1
 
 MAX_EVENTS = 4
 MAX_LEVELS = 2
+SCRATCH = 2 * MAX_EVENTS + 2 * MAX_LEVELS
 MAX_LIGHTS = 16
 N_BASE_CHANNELS = 10
 BLOCK = 8
@@ -48,6 +49,13 @@ DIM_EVENT = 16          # event k uses DIM_EVENT + DIM_EVENT_STRIDE * k + ...
 DIM_EVENT_STRIDE = 64
 ROULETTE_BELOW = 0.02   # Russian roulette on shadow rays once transmittance falls below this
 ROULETTE_SURVIVE = 0.25
+ROULETTE_DEPTH = -math.log(ROULETTE_BELOW)   # compare optical depth, not exp(-tau), per step
+#: A camera ray stops once all its events are found and its transmittance is below exp(-this):
+#: alpha is then exact to 1e-5 (early ray termination, common practice).
+TERMINATE_OPTICAL_DEPTH = 11.5129
+#: Macrocells span this many voxel intervals per axis.
+CELL = 8
+INV_CELL = 1.0 / CELL
 
 
 @njit(**JIT)
@@ -88,13 +96,88 @@ def to_index_direction(world_to_index, dx, dy, dz):
             m[2, 0] * dx + m[2, 1] * dy + m[2, 2] * dz)
 
 
+@njit(**JIT_PARALLEL)
+def build_macrocells(field, extinction, lookup, out):
+    """Largest extinction any point of each macrocell can take.
+
+    field (nx, ny, nz) float32; extinction (n,) float32 table; lookup (2,) float64;
+    out (ceil((nx-1)/CELL), ...) float32. Cell c covers voxel indices [CELL c, CELL c + CELL]
+    (the trilinear field inside it is a convex combination of those voxels); its value is the
+    largest table entry over the table interval spanning the cell's [min, max] value, so a cell
+    holding 0 has zero extinction everywhere inside it, exactly.
+    """
+    nx, ny, nz = field.shape
+    cx, cy, cz = out.shape
+    n_entries = extinction.shape[0]
+    for a in prange(cx):
+        for b in range(cy):
+            for c in range(cz):
+                low = np.inf
+                high = -np.inf
+                for i in range(a * CELL, min(a * CELL + CELL, nx - 1) + 1):
+                    for j in range(b * CELL, min(b * CELL + CELL, ny - 1) + 1):
+                        for k in range(c * CELL, min(c * CELL + CELL, nz - 1) + 1):
+                            value = field[i, j, k]
+                            low = min(low, value)
+                            high = max(high, value)
+                e0 = int(math.floor(table_position(lookup, n_entries, low)))
+                e1 = min(int(math.ceil(table_position(lookup, n_entries, high))), n_entries - 1)
+                largest = 0.0
+                for e in range(e0, e1 + 1):
+                    largest = max(largest, extinction[e])
+                out[a, b, c] = largest
+
+
 @njit(**JIT)
-def transmittance(field, world_to_index, extinction, lookup, px, py, pz, dx, dy, dz, t_max, step, u_offset, u_roulette):
+def cell_exit(cells, ox, oy, oz, ix, iy, iz, px, py, pz):
+    """For index point p on the ray o + t i: whether its macrocell is empty, and the ray parameter
+    where the ray leaves that cell."""
+    a = min(int(px * INV_CELL), cells.shape[0] - 1)
+    b = min(int(py * INV_CELL), cells.shape[1] - 1)
+    c = min(int(pz * INV_CELL), cells.shape[2] - 1)
+    t_exit = np.inf
+    if ix > 0.0:
+        t_exit = min(t_exit, ((a + 1) * CELL - ox) / ix)
+    elif ix < 0.0:
+        t_exit = min(t_exit, (a * CELL - ox) / ix)
+    if iy > 0.0:
+        t_exit = min(t_exit, ((b + 1) * CELL - oy) / iy)
+    elif iy < 0.0:
+        t_exit = min(t_exit, (b * CELL - oy) / iy)
+    if iz > 0.0:
+        t_exit = min(t_exit, ((c + 1) * CELL - oz) / iz)
+    elif iz < 0.0:
+        t_exit = min(t_exit, (c * CELL - oz) / iz)
+    return cells[a, b, c] <= 0.0, t_exit
+
+
+@njit(**JIT)
+def segment_bounds(t0, t1, step, u_offset, j):
+    """Segment j of a march: [t0, t0 + u step], then steps of ``step``; computed, not accumulated,
+    so skipping ahead lands on the very same boundaries."""
+    ta = t0 if j == 0 else t0 + (u_offset + (j - 1)) * step
+    tb = min(t0 + (u_offset + j) * step, t1)
+    return ta, tb
+
+
+@njit(**JIT)
+def next_segment_after(t0, step, u_offset, j, t_exit):
+    """The first segment after j whose (unclipped) midpoint lies at or beyond t_exit."""
+    candidate = int(math.ceil((t_exit - t0) / step - u_offset + 0.5))
+    return max(j + 1, candidate)
+
+
+@njit(**JIT)
+def transmittance(field, cells, world_to_index, extinction, lookup, px, py, pz, dx, dy, dz, t_max, step,
+                  u_offset, u_roulette, skip, counts, row):
     """Unbiased transmittance estimate from world point p along unit direction d up to ``t_max`` mm.
 
-    Marches steps of ``step`` mm with a random first step, extinction at each step's
-    midpoint; once the transmittance falls below ROULETTE_BELOW, one Russian-roulette draw
-    ends the ray or divides on by the survival probability.
+    Marches steps of ``step`` mm with a random first step, extinction at each step's midpoint,
+    stepping over empty macrocells (exact: they contribute zero optical depth); once the
+    transmittance falls below ROULETTE_BELOW, one Russian-roulette draw ends the ray or divides
+    on by the survival probability. With ``skip`` false, empty cells are marched through (for
+    measurements). ``counts[row, 0]`` gains the field samples taken, ``counts[row, 1]`` those that fell
+    in non-empty cells.
     """
     ox, oy, oz = to_index(world_to_index, px, py, pz)
     ix, iy, iz = to_index_direction(world_to_index, dx, dy, dz)
@@ -105,20 +188,36 @@ def transmittance(field, world_to_index, extinction, lookup, px, py, pz, dx, dy,
     tau = 0.0
     weight = 1.0
     rouletted = False
-    ta = t0
-    tb = t0 + u_offset * step
-    while ta < t1:
-        tb = min(tb, t1)
+    n_samples = 0
+    n_useful = 0
+    cell_end = -np.inf
+    empty = False
+    j = 0
+    while True:
+        ta, tb = segment_bounds(t0, t1, step, u_offset, j)
+        if ta >= t1:
+            break
         tm = 0.5 * (ta + tb)
-        value = trilinear(field, ox + tm * ix, oy + tm * iy, oz + tm * iz)
+        qx, qy, qz = ox + tm * ix, oy + tm * iy, oz + tm * iz
+        if tm >= cell_end:       # entered another macrocell: look it up once
+            empty, cell_end = cell_exit(cells, ox, oy, oz, ix, iy, iz, qx, qy, qz)
+            if empty and skip:
+                j = next_segment_after(t0, step, u_offset, j, cell_end)
+                continue
+        n_useful += not empty
+        value = trilinear(field, qx, qy, qz)
+        n_samples += 1
         tau += extinction_at(extinction, lookup, value) * (tb - ta)
-        if not rouletted and math.exp(-tau) < ROULETTE_BELOW:
+        if not rouletted and tau > ROULETTE_DEPTH:
             rouletted = True
             if u_roulette >= ROULETTE_SURVIVE:
+                counts[row, 0] += n_samples
+                counts[row, 1] += n_useful
                 return 0.0
             weight = 1.0 / ROULETTE_SURVIVE
-        ta = tb
-        tb = ta + step
+        j += 1
+    counts[row, 0] += n_samples
+    counts[row, 1] += n_useful
     return weight * math.exp(-tau)
 
 
@@ -216,8 +315,9 @@ def lobe(weight, g, nx, ny, nz, dx, dy, dz, lx, ly, lz):
 
 
 @njit(**JIT)
-def scattered_light(field, world_to_index, extinction, lookup, lights, env_kind, env_colors, env_image,
-                    step, g, weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim):
+def scattered_light(field, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors, env_image,
+                    step, g, weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim, skip, counts,
+                    row):
     """Single-scattered radiance S at p before the albedo: direct lights plus one environment direction."""
     s0 = 0.0
     s1 = 0.0
@@ -239,8 +339,8 @@ def scattered_light(field, world_to_index, extinction, lookup, lights, env_kind,
         if f <= 0.0:
             continue
         dim = base_dim + 16 + 2 * light
-        t = transmittance(field, world_to_index, extinction, lookup, px, py, pz, lx, ly, lz, distance, step,
-                          uniform(seed, pixel, sample, dim), uniform(seed, pixel, sample, dim + 1))
+        t = transmittance(field, cells, world_to_index, extinction, lookup, px, py, pz, lx, ly, lz, distance, step,
+                          uniform(seed, pixel, sample, dim), uniform(seed, pixel, sample, dim + 1), skip, counts, row)
         scale = f * falloff * t
         s0 += scale * lights[light, 4]
         s1 += scale * lights[light, 5]
@@ -253,8 +353,8 @@ def scattered_light(field, world_to_index, extinction, lookup, lights, env_kind,
         wx, wy, wz = sample_cosine(nx, ny, nz, u1, u2)
     else:
         wx, wy, wz = sample_henyey_greenstein(dx, dy, dz, g, u1, u2)
-    t = transmittance(field, world_to_index, extinction, lookup, px, py, pz, wx, wy, wz, np.inf, step,
-                      uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4))
+    t = transmittance(field, cells, world_to_index, extinction, lookup, px, py, pz, wx, wy, wz, np.inf, step,
+                      uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4), skip, counts, row)
     if t > 0.0:
         e0, e1, e2 = environment_radiance(env_kind, env_colors, env_image, wx, wy, wz)
         s0 += t * e0
@@ -264,9 +364,14 @@ def scattered_light(field, world_to_index, extinction, lookup, lights, env_kind,
 
 
 @njit(**JIT)
-def trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image, background, background_is_env,
-               shading, n_events, levels, step, g, gradient_scale, seed, row, col, width, height, sample, acc):
-    """One sample path of pixel (row, col); adds its contribution to ``acc[row, col]``."""
+def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
+               background_is_env, shading, n_events, levels, step, g, gradient_scale, seed, row, col, width, height,
+               sample, skip, acc, counts, scratch):
+    """One sample path of pixel (row, col); adds its contribution to ``acc[row, col]``.
+
+    ``scratch`` (SCRATCH,) float64 is the row's work space (allocated once per row, not per path):
+    event thresholds, level thresholds, event distances, level distances.
+    """
     field, world_to_index, _index_to_world, gradient_to_world = volume
     albedo, extinction, lookup = transfer
     pixel = row * width + col
@@ -288,15 +393,17 @@ def trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image
 
     # march, locating the stochastic events and the fixed feature levels
     n_levels = levels.shape[0]
-    targets = np.empty(MAX_EVENTS)
+    targets = scratch[0:MAX_EVENTS]
+    level_targets = scratch[MAX_EVENTS:MAX_EVENTS + MAX_LEVELS]
+    event_t = scratch[MAX_EVENTS + MAX_LEVELS:2 * MAX_EVENTS + MAX_LEVELS]
+    level_t = scratch[2 * MAX_EVENTS + MAX_LEVELS:SCRATCH]
     for k in range(n_events):
         u = (k + uniform(seed, pixel, sample, DIM_THRESHOLD + k)) / n_events
         targets[k] = -math.log1p(-u)
-    level_targets = np.empty(MAX_LEVELS)
+        event_t[k] = -1.0
     for k in range(n_levels):
         level_targets[k] = -math.log1p(-levels[k])
-    event_t = np.full(MAX_EVENTS, -1.0)
-    level_t = np.full(MAX_LEVELS, -1.0)
+        level_t[k] = -1.0
 
     ox, oy, oz = to_index(world_to_index, px, py, pz)
     ix, iy, iz = to_index_direction(world_to_index, dx, dy, dz)
@@ -305,12 +412,28 @@ def trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image
     next_event = 0
     next_level = 0
     if t1 > t0:
-        ta = t0
-        tb = t0 + uniform(seed, pixel, sample, DIM_OFFSET) * step
-        while ta < t1:
-            tb = min(tb, t1)
+        u_offset = uniform(seed, pixel, sample, DIM_OFFSET)
+        n_samples = 0
+        n_useful = 0
+        cell_end = -np.inf
+        empty = False
+        j = 0
+        while True:
+            ta, tb = segment_bounds(t0, t1, step, u_offset, j)
+            if ta >= t1:
+                break
+            if next_event >= n_events and next_level >= n_levels and tau > TERMINATE_OPTICAL_DEPTH:
+                break
             tm = 0.5 * (ta + tb)
-            value = trilinear(field, ox + tm * ix, oy + tm * iy, oz + tm * iz)
+            qx, qy, qz = ox + tm * ix, oy + tm * iy, oz + tm * iz
+            if tm >= cell_end:       # entered another macrocell: look it up once
+                empty, cell_end = cell_exit(cells, ox, oy, oz, ix, iy, iz, qx, qy, qz)
+                if empty and skip:
+                    j = next_segment_after(t0, step, u_offset, j, cell_end)
+                    continue
+            n_useful += not empty
+            value = trilinear(field, qx, qy, qz)
+            n_samples += 1
             sigma = extinction_at(extinction, lookup, value)
             dtau = sigma * (tb - ta)
             while next_event < n_events and tau + dtau >= targets[next_event]:
@@ -320,8 +443,9 @@ def trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image
                 level_t[next_level] = ta + (level_targets[next_level] - tau) / sigma
                 next_level += 1
             tau += dtau
-            ta = tb
-            tb = ta + step
+            j += 1
+        counts[row, 0] += n_samples
+        counts[row, 1] += n_useful
     alpha = -math.expm1(-tau)
 
     # shade each stratum
@@ -337,11 +461,13 @@ def trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image
             continue
         qx, qy, qz = px + t * dx, py + t * dy, pz + t * dz
         value, nx, ny, nz, magnitude = event_frame(field, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
+        counts[row, 0] += 7
+        counts[row, 1] += 7
         a0, a1, a2 = albedo_at(albedo, lookup, value)
         weight = surface_weight(shading, gradient_scale, magnitude)
-        s0, s1, s2 = scattered_light(field, world_to_index, extinction, lookup, lights, env_kind, env_colors,
+        s0, s1, s2 = scattered_light(field, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors,
                                      env_image, step, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz,
-                                     seed, pixel, sample, DIM_EVENT + DIM_EVENT_STRIDE * k)
+                                     seed, pixel, sample, DIM_EVENT + DIM_EVENT_STRIDE * k, skip, counts, row)
         r0 += a0 * s0
         r1 += a1 * s1
         r2 += a2 * s2
@@ -365,6 +491,8 @@ def trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image
             continue
         qx, qy, qz = px + t * dx, py + t * dy, pz + t * dz
         value, nx, ny, nz, magnitude = event_frame(field, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
+        counts[row, 0] += 7
+        counts[row, 1] += 7
         block = N_BASE_CHANNELS + BLOCK * (2 + k)
         acc[row, col, block] += 1.0
         acc[row, col, block + 1] += qx
@@ -387,9 +515,9 @@ def trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image
 
 
 @njit(**JIT_PARALLEL)
-def render_rows(volume, transfer, camera, lights, env_kind, env_colors, env_image, background, background_is_env,
-                shading, n_events, levels, step, g, gradient_scale, seed, row_start, row_end,
-                sample_start, sample_end, acc):
+def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
+                background_is_env, shading, n_events, levels, step, g, gradient_scale, seed, row_start, row_end,
+                sample_start, sample_end, skip, acc, counts):
     """Add samples [sample_start, sample_end) of rows [row_start, row_end) to ``acc``.
 
     Parameters
@@ -397,6 +525,8 @@ def render_rows(volume, transfer, camera, lights, env_kind, env_colors, env_imag
     volume : VolumeArrays (field (nx, ny, nz) float32; world_to_index (3, 4); index_to_world (3, 4);
         gradient_to_world (3, 3); float64)
     transfer : TransferArrays (albedo (n, 3) float32; extinction (n,) float32 per mm; lookup (2,) float64)
+    cells : (cx, cy, cz) float32 macrocell maxima from :func:`build_macrocells`
+    skip : bool; step over empty cells (exact); false marches through them (for measurements)
     camera : (4, 3) float64 rows: position (mm), forward (unit), right and up scaled by the
         half-extent of the image plane at distance 1
     lights : (n_lights, 7) float64 rows ``[kind, x, y, z, r, g, b]``: toward (unit) and irradiance for
@@ -406,12 +536,15 @@ def render_rows(volume, transfer, camera, lights, env_kind, env_colors, env_imag
     acc : (H, W, C) float64 accumulator; each row is written by exactly one iteration, and
         each pixel receives its samples in increasing order, so the sums are bit-identical for
         any thread count or pass split.
+    counts : (H, 2) int64; per row, the field samples taken (march, shadow and environment rays, and
+        the 7 of value and gradient at each event) and those of them that fell in non-empty macrocells.
     """
     width = acc.shape[1]
     height = acc.shape[0]
     for row in prange(row_start, row_end):
+        scratch = np.empty(SCRATCH)
         for col in range(width):
             for sample in range(sample_start, sample_end):
-                trace_path(volume, transfer, camera, lights, env_kind, env_colors, env_image, background,
+                trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                            background_is_env, shading, n_events, levels, step, g, gradient_scale, seed,
-                           row, col, width, height, sample, acc)
+                           row, col, width, height, sample, skip, acc, counts, scratch)
