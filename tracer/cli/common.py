@@ -7,6 +7,7 @@ import warnings
 
 import typer
 from rich.console import Console
+from rich.markup import escape
 
 MEDICAL_CAUTION = ("Renders of medical scans are for research and teaching, not diagnosis; transfer functions "
                    "can hide or invent structure. Defer to licensed clinical practice and local regulations.")
@@ -28,7 +29,7 @@ def reports_user_errors(function):
                 result = function(*args, **kwargs)
             except UserError as error:
                 _show_warnings(caught)
-                error_console.print(f"[red]error:[/red] {error}", soft_wrap=True)
+                error_console.print(f"[red]error:[/red] {escape(str(error))}", soft_wrap=True)
                 raise typer.Exit(code=2)
             _show_warnings(caught)
         return result
@@ -39,4 +40,4 @@ def reports_user_errors(function):
 def _show_warnings(caught) -> None:
     for item in caught:
         if issubclass(item.category, UserWarning):
-            error_console.print(f"[yellow]warning:[/yellow] {item.message}", soft_wrap=True)
+            error_console.print(f"[yellow]warning:[/yellow] {escape(str(item.message))}", soft_wrap=True)

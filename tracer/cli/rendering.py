@@ -70,7 +70,7 @@ def render(
     total = loaded.settings.spp
     columns = [TextColumn("[bold]{task.description}"), BarColumn(), TextColumn("{task.fields[status]}"),
                TimeElapsedColumn(), TextColumn("eta"), TimeRemainingColumn()]
-    with Progress(*columns, console=error_console, transient=False) as progress:
+    with Progress(*columns, console=error_console, transient=True) as progress:
         task = progress.add_task(f"{name} {cam.width}x{cam.height}", total=None if target_error else total,
                                  status="compiling / loading kernels")
         started = time.perf_counter()

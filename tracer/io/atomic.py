@@ -28,6 +28,11 @@ def atomic_path(path: str | Path):
     try:
         yield temporary
         os.replace(temporary, path)
+    except OSError as error:
+        with contextlib.suppress(OSError):
+            temporary.unlink()
+        reason = error.strerror or str(error) or type(error).__name__
+        raise UserError(f"{path}: cannot write: {reason}; the previous file, if any, is unchanged") from None
     except BaseException:
         with contextlib.suppress(OSError):
             temporary.unlink()

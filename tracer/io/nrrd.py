@@ -47,9 +47,14 @@ def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
     except OSError as error:
         raise UserError(f"{path}: cannot read: {error.strerror or error}")
 
-    dimension = int(header.get("dimension", 0))
-    sizes = [int(s) for s in np.atleast_1d(header.get("sizes", []))]
-    if dimension != 3 or len(sizes) != 3:
+    for required in ("type", "dimension", "sizes", "encoding"):
+        if required not in header:
+            raise UserError(f"{path}: {required}: missing (a field the NRRD format requires)")
+    dimension = int(header["dimension"])
+    sizes = [int(s) for s in np.atleast_1d(header["sizes"])]
+    if dimension != len(sizes):
+        raise UserError(f"{path}: sizes: dimension is {dimension} but sizes lists {len(sizes)} values {sizes}")
+    if dimension != 3:
         raise UserError(f"{path}: dimension: a volume must be 3-D, this file is {dimension}-D (sizes {sizes})")
     if min(sizes) < 2:
         raise UserError(f"{path}: sizes: every axis needs at least 2 samples, got {sizes}")
