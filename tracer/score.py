@@ -92,15 +92,9 @@ def read_radiance(path) -> tuple[np.ndarray, dict, dict]:
         return radiance, others, meta
     if path.suffix.lower() != ".npz":
         raise UserError(f"{path}: expected an .npz or .exr image")
-    import zipfile
+    from .io.npz import load_arrays
 
-    try:
-        with np.load(path, allow_pickle=False) as archive:
-            contents = {key: archive[key] for key in archive.files}
-    except FileNotFoundError:
-        raise UserError(f"{path}: file not found")
-    except (ValueError, OSError, zipfile.BadZipFile, EOFError) as error:
-        raise UserError(f"{path}: not a readable NPZ: {error}")
+    contents = load_arrays(path)
     if "radiance" not in contents:
         raise UserError(f"{path}: radiance: missing (an NPZ candidate needs a 'radiance' array of shape (H, W, 3))")
     radiance = contents.pop("radiance")

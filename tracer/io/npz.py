@@ -39,16 +39,22 @@ def write_arrays(path, arrays: dict[str, np.ndarray]) -> None:
                 np.lib.format.write_array(member, np.asanyarray(array), allow_pickle=False)
 
 
-def read_npz(path) -> Frame:
-    """Read a render NPZ and check it holds the buffers of the file contract."""
+def load_arrays(path) -> dict[str, np.ndarray]:
+    """Every array of an ``.npz`` file (never unpickling); unreadable files are a :class:`UserError`."""
     path = Path(path)
     try:
         with np.load(path, allow_pickle=False) as archive:
-            contents = {key: archive[key] for key in archive.files}
+            return {key: archive[key] for key in archive.files}
     except FileNotFoundError:
         raise UserError(f"{path}: file not found")
     except (ValueError, OSError, zipfile.BadZipFile, EOFError) as error:
-        raise UserError(f"{path}: not a readable render NPZ: {str(error).splitlines()[0] if str(error) else type(error).__name__}")
+        raise UserError(f"{path}: not a readable NPZ: {str(error).splitlines()[0] if str(error) else type(error).__name__}")
+
+
+def read_npz(path) -> Frame:
+    """Read a render NPZ and check it holds the buffers of the file contract."""
+    path = Path(path)
+    contents = load_arrays(path)
     if "meta" not in contents:
         raise UserError(f"{path}: meta: missing; not a render file of this tool")
     try:
