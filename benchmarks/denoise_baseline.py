@@ -14,8 +14,6 @@ import json
 import time
 from pathlib import Path
 
-import numpy as np
-
 ROOT = Path(__file__).resolve().parents[1]
 
 

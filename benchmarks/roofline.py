@@ -3,7 +3,6 @@ roofline the renderer's effective sampling rate is measured against."""
 
 from __future__ import annotations
 
-import numpy as np
 from numba import njit, prange
 
 from tracer._kernels.sampling import trilinear

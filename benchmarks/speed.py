@@ -143,7 +143,7 @@ def main() -> None:
                           "wall_time_ratio_off_over_on": off["seconds"] / on["seconds"]}
 
     # threads
-    one, two = render_rate(small, spp=4, threads=1), render_rate(small, spp=4, threads=2)
+    one, two = render_rate(small, spp=8, threads=1), render_rate(small, spp=8, threads=2)
     report["threads"] = {"seconds_1": one["seconds"], "seconds_2": two["seconds"], "speedup": one["seconds"] / two["seconds"]}
 
     report.update(start_times())

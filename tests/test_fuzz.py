@@ -8,8 +8,6 @@ import tomllib
 import warnings
 from pathlib import Path
 
-import numpy as np
-import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 

@@ -7,9 +7,9 @@ import numpy as np
 import pytest
 
 from tracer.buffers import Frame
-from tracer.denoise import DenoiseSettings, denoise
+from tracer.denoise import denoise
 from tracer.errors import UserError
-from tracer.io.npz import write_arrays, write_npz
+from tracer.io.npz import write_arrays
 from tracer.metrics import score
 from tracer.rendering import render
 from tracer.score import equal_quality_spp, score_files

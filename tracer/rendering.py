@@ -8,7 +8,6 @@ writes checkpoints and resumes from them bit-exactly.
 
 from __future__ import annotations
 
-import json
 import math
 import time
 from dataclasses import dataclass

@@ -3,8 +3,6 @@
 import csv
 import json
 
-import numpy as np
-
 from tests.dataset.plans import write_plan
 from tracer.dataset.manifest import read_manifest
 from tracer.dataset.run import build_dataset

@@ -1,7 +1,6 @@
 """Building datasets: serial and on a real Dask LocalCluster, bit-identical; independent noise;
 certified references; resume after kill -9; checksums."""
 
-import json
 import os
 import signal
 import subprocess
@@ -12,7 +11,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from tracer.dataset.manifest import read_manifest, record_is_intact, sha256_file
+from tracer.dataset.manifest import read_manifest, record_is_intact
 from tracer.dataset.plan import load_plan
 from tracer.dataset.run import build_dataset, item_scene
 from tracer.errors import UserError

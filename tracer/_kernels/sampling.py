@@ -6,7 +6,6 @@ and the field is trilinear between them. Callers keep points inside [0, n-1] per
 
 import math
 
-import numpy as np
 from numba import njit
 
 from ..config import JIT

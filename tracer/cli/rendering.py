@@ -39,8 +39,6 @@ def render(
 
     Ctrl-C writes what is done as a valid render with its true spp (and a checkpoint to --resume from).
     """
-    import time
-
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
     from ..outputs import check_output_folder, parse_formats, save_frame
@@ -73,7 +71,6 @@ def render(
     with Progress(*columns, console=error_console, transient=True) as progress:
         task = progress.add_task(f"{name} {cam.width}x{cam.height}", total=None if target_error else total,
                                  status="compiling / loading kernels")
-        started = time.perf_counter()
 
         def report(state):
             seconds = max(state.elapsed_seconds, 1e-9)
@@ -98,7 +95,6 @@ def render(
         error_console.print(f"[yellow]interrupted:[/yellow] wrote the {frame.spp} spp done; "
                             f"continue with --resume (checkpoint {checkpoint})")
         raise typer.Exit(code=130)
-    del started
 
 
 @reports_user_errors

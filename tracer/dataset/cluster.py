@@ -73,9 +73,19 @@ def client_for(workers: int | None, scheduler: str | None, dashboard: bool = Fal
 
 
 def _warm_up() -> bool:
-    """Compile (or load) the kernels once per worker before items arrive."""
-    from tracer._kernels.integrate import render_rows  # noqa: F401
+    """Compile (or load from the cache) the render kernel once per worker before items arrive."""
+    import numpy as np
 
+    from tracer.camera import Camera
+    from tracer.rendering import render
+    from tracer.scene import Scene
+    from tracer.transfer import TransferFunction
+    from tracer.volume import Volume
+
+    volume = Volume(np.linspace(0, 1, 27, dtype=np.float32).reshape(3, 3, 3))
+    tf = TransferFunction(np.array([0.0, 1.0]), np.array([0.0, 0.5]), np.array([0.0]), np.array([[0.5, 0.5, 0.5]]))
+    camera = Camera(position=(1.0, -6.0, 1.0), target=(1.0, 1.0, 1.0), width=2, height=2)
+    render(Scene(volume, tf, camera), spp=1)
     return True
 
 

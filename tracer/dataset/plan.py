@@ -23,7 +23,7 @@ from .._kernels.rng import mix64_numpy, uniform_numpy
 from ..camera import Camera
 from ..errors import UserError
 from ..scene import ENVIRONMENTS, Environment, Light, RenderSettings, SHADINGS
-from ..transfer import TransferFunction, load_transfer_function
+from ..transfer import TransferFunction
 
 #: Input renders use sample indices from here on, references from 0: never the same indices.
 INPUT_SAMPLE_BASE = 2**40

@@ -19,7 +19,6 @@ import dataclasses
 import functools
 import json
 import math
-import os
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -93,7 +92,7 @@ def render_item_inputs(plan_path: str, fingerprint: str, index: int, out_dir: st
 
     Runs on a worker or in-process. Returns a partial record (files with checksums, timings).
     """
-    from ..rendering import render, residual_noise
+    from ..rendering import render
 
     plan = _cached_plan(plan_path, fingerprint)
     item = plan.items()[index]
