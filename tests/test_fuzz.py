@@ -4,6 +4,7 @@ loads or raises tracer.UserError with one line; never another exception, never a
 from __future__ import annotations
 
 import copy
+import os
 import tomllib
 import warnings
 from pathlib import Path
@@ -20,12 +21,13 @@ from tracer.volume import load_volume
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLES = 150
-FUZZ = settings(max_examples=EXAMPLES, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture,
-                                                                              HealthCheck.too_slow])
+# CI replays a fixed sequence (derandomize) so that a red run always means a real finding; locally each run explores anew
+FUZZ = settings(max_examples=EXAMPLES, deadline=None, derandomize=bool(os.environ.get("CI")),
+                suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow,
+                                       HealthCheck.data_too_large])
 
-scalars = st.one_of(st.none(), st.booleans(), st.integers(-10**6, 10**6), st.floats(allow_nan=True),
-                    st.text(max_size=12))
-values = st.recursive(scalars.filter(lambda v: v is not None),
+scalars = st.one_of(st.booleans(), st.integers(-10**6, 10**6), st.floats(allow_nan=True), st.text(max_size=12))
+values = st.recursive(scalars,
                       lambda children: st.one_of(st.lists(children, max_size=4),
                                                  st.dictionaries(st.text(max_size=8), children, max_size=4)),
                       max_leaves=12)
