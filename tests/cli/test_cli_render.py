@@ -28,6 +28,7 @@ def test_render_writes_every_format_and_the_sheet(tmp_path, root):
     assert frame["radiance"].shape == (20, 24, 3)
     assert frame.meta["spp"] == 2 and frame.meta["seed"] == 5 and frame.meta["stopped"] == "spp"
     assert "2 spp in" in result.stdout
+    assert "not diagnosis" in result.stdout          # the figurine uses a Hounsfield-scale preset
 
 
 def test_render_with_target_error_reports_the_spp_reached(tmp_path, root):

@@ -7,7 +7,7 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import console, error_console, reports_user_errors
+from .common import MEDICAL_CAUTION, console, error_console, reports_user_errors
 
 
 def register(app: typer.Typer) -> None:
@@ -84,6 +84,8 @@ def render(
                              checkpoint_every=checkpoint_every, resume=resume)
         progress.update(task, completed=frame.spp, total=frame.spp if target_error else total)
     paths = save_frame(frame, out, name, formats, exposure, sheet)
+    if loaded.transfer_function.scale == "HU":
+        console.print(f"[dim]{MEDICAL_CAUTION}[/dim]")
     meta = frame.meta
     line = f"{frame.spp} spp in {meta['render_seconds']:.2f} s ({meta['stopped']})"
     if "relative_error" in meta:
