@@ -35,6 +35,9 @@ def main() -> None:
         ("renderer's effective field samples/s (figurine)",
          f"{r['renderer_effective_samples_per_second'] / m:.0f} M samples/s = {100 * r['renderer_over_roofline']:.0f}% "
          "of the roofline", ">= 50%"),
+        ("the renderer's march alone along coherent rays (no shading)",
+         f"{r['march_only_samples_per_second'] / m:.0f} M samples/s = "
+         f"{100 * r['march_only_samples_per_second'] / r['roofline_samples_per_second']:.0f}% of the roofline", ""),
         ("128^3 / 256^3 smooth volume: roofline; renderer",
          f"{v['128']['roofline_samples_per_second'] / m:.0f} / {v['256']['roofline_samples_per_second'] / m:.0f} M/s; "
          f"{v['128']['renderer_effective_samples_per_second'] / m:.0f} / {v['256']['renderer_effective_samples_per_second'] / m:.0f} M/s "

@@ -3,8 +3,10 @@ roofline the renderer's effective sampling rate is measured against."""
 
 from __future__ import annotations
 
+import numpy as np
 from numba import njit, prange
 
+from tracer._kernels.integrate import transmittance
 from tracer._kernels.sampling import trilinear
 
 
@@ -25,3 +27,23 @@ def coherent_sampling(field, n_rays_side, n_steps, out):
                 if x > nx - 1.0:
                     x -= nx - 1.0
         out[a] = total
+
+
+@njit(parallel=True, cache=True)
+def coherent_march(field, bricks, shape, cells, world_to_index, extinction, lookup, n_rays_side, step, counts):
+    """The renderer's own march (``transmittance``, no skipping) along the same kind of coherent rays:
+    the per-step bookkeeping without shading or incoherence. counts : (n_rays_side, 2) int64."""
+    nx, ny, nz = field.shape
+    out = np.zeros(n_rays_side)
+    for a in prange(n_rays_side):
+        total = 0.0
+        for b in range(n_rays_side):
+            y = 0.5 + a * (ny - 2.0) / n_rays_side
+            z = 0.5 + b * (nz - 2.0) / n_rays_side
+            px = (0.0 - world_to_index[0, 3]) / world_to_index[0, 0]
+            py = (y - world_to_index[1, 3]) / world_to_index[1, 1]
+            pz = (z - world_to_index[2, 3]) / world_to_index[2, 2]
+            total += transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, 1.0, 0.0, 0.0,
+                                   np.inf, step, 0.3, 0.0, False, counts, a)
+        out[a] = total
+    return out

@@ -51,6 +51,24 @@ def roofline(field: np.ndarray, threads: int | None = None) -> float:
     return side * side * steps / seconds
 
 
+def march_rate(scene) -> float:
+    """The renderer's march alone (no skipping, no shading) along coherent rays: samples per second."""
+    from roofline import coherent_march
+
+    from tracer.rendering import kernel_arguments
+
+    arguments, _ = kernel_arguments(scene)
+    volume, transfer, cells = arguments[0], arguments[1], arguments[2]
+    side = 256
+    counts = np.zeros((side, 2), np.int64)
+    coherent_march(volume.field, volume.bricks, volume.shape, cells, volume.world_to_index, transfer.extinction,
+                   transfer.lookup, 8, scene.settings.step_mm, np.zeros((8, 2), np.int64))
+    seconds, _ = timed(coherent_march, volume.field, volume.bricks, volume.shape, cells, volume.world_to_index,
+                       transfer.extinction,
+                       transfer.lookup, side, scene.settings.step_mm, counts)
+    return counts[:, 0].sum() / 3 / seconds
+
+
 def render_rate(scene, spp, threads=None, skipping=True, repeat=2):
     from tracer.rendering import render
 
@@ -124,6 +142,7 @@ def main() -> None:
     rate = render_rate(figurine.with_overrides(width=256, height=256), spp=4)
     report["renderer_effective_samples_per_second"] = rate["effective_samples_per_second"]
     report["renderer_over_roofline"] = rate["effective_samples_per_second"] / report["roofline_samples_per_second"]
+    report["march_only_samples_per_second"] = march_rate(figurine)
 
     # the demos
     report["demos"] = {}
@@ -180,6 +199,7 @@ def print_table(r: dict) -> None:
     print(f"roofline (coherent trilinear)          {r['roofline_samples_per_second'] / m:8.1f} M samples/s")
     print(f"renderer effective (figurine 256^2)    {r['renderer_effective_samples_per_second'] / m:8.1f} M samples/s "
           f"= {100 * r['renderer_over_roofline']:.0f}% of the roofline (target >= 50%)")
+    print(f"its march alone, coherent rays          {r['march_only_samples_per_second'] / m:8.1f} M samples/s")
     print("demo       size   paths/s (M)   s/spp   samples/path")
     for name, sizes in r["demos"].items():
         for size, row in sizes.items():

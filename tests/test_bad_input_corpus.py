@@ -161,7 +161,7 @@ CASES = [
     Case("nrrd not a NRRD", "NRRD", header_file("PK\x03\x04 this is a zip file", bytes(16)), "error: {tmp}/bad.nrrd: not a readable NRRD header: Invalid NRRD magic line. Is this an NRRD file?"),
     Case("nrrd detached data outside the folder", "NRRD", detached_escape, "error: {tmp}/inner/x.nhdr: data file: '../outside.raw' lies outside the header's folder; refused (move the data next to the header)"),
     Case("nrrd oversized for the memory budget", "NRRD",
-         header_file(SIZES.replace("sizes: 2 2 2", "sizes: 2048 2048 2048").replace("raw", "gzip"), gzip.compress(b"")), "error: {tmp}/bad.nrrd: sizes: [2048, 2048, 2048] needs 65536 MiB, over the memory budget of 1024 MiB (set TRACER_MEMORY_BUDGET_MB to raise it)",
+         header_file(SIZES.replace("sizes: 2 2 2", "sizes: 2048 2048 2048").replace("raw", "gzip"), gzip.compress(b"")), "error: {tmp}/bad.nrrd: sizes: [2048, 2048, 2048] needs 114688 MiB, over the memory budget of 1024 MiB (set TRACER_MEMORY_BUDGET_MB to raise it)",
          env={"TRACER_MEMORY_BUDGET_MB": "1024"}),
     Case("volume with NaN voxels", "NRRD", nrrd_volume(np.array([[[np.nan, 1], [1, 1]], [[1, 1], [1, 1]]], np.float32)), "error: {tmp}/v.nrrd: data: 1 voxels are NaN or Inf; fix or mask them before rendering"),
     Case("volume with Inf voxels", "NRRD", nrrd_volume(np.array([[[np.inf, 1], [1, 1]], [[1, 1], [1, -np.inf]]], np.float32)), "error: {tmp}/v.nrrd: data: 2 voxels are NaN or Inf; fix or mask them before rendering"),

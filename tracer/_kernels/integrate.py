@@ -21,8 +21,8 @@ from numba import njit, prange
 
 from ..config import JIT, JIT_PARALLEL
 from .rng import uniform
-from .sampling import (INV_PI, albedo_at, extinction_at, gradient_index, henyey_greenstein,
-                       sample_cosine, sample_henyey_greenstein, table_position, trilinear)
+from .sampling import (INV_PI, albedo_at, extinction_at, gradient_bricked, henyey_greenstein, sample_cosine,
+                       sample_henyey_greenstein, table_position, trilinear_bricked)
 
 # integer codes (strings never reach compiled code)
 SHADING_PHASE = 0
@@ -168,7 +168,7 @@ def next_segment_after(t0, step, u_offset, j, t_exit):
 
 
 @njit(**JIT)
-def transmittance(field, cells, world_to_index, extinction, lookup, px, py, pz, dx, dy, dz, t_max, step,
+def transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, dx, dy, dz, t_max, step,
                   u_offset, u_roulette, skip, counts, row):
     """Unbiased transmittance estimate from world point p along unit direction d up to ``t_max`` mm.
 
@@ -181,7 +181,7 @@ def transmittance(field, cells, world_to_index, extinction, lookup, px, py, pz, 
     """
     ox, oy, oz = to_index(world_to_index, px, py, pz)
     ix, iy, iz = to_index_direction(world_to_index, dx, dy, dz)
-    t0, t1 = box_interval(field.shape, ox, oy, oz, ix, iy, iz)
+    t0, t1 = box_interval(shape, ox, oy, oz, ix, iy, iz)
     t1 = min(t1, t_max)
     if t1 <= t0:
         return 1.0
@@ -205,7 +205,7 @@ def transmittance(field, cells, world_to_index, extinction, lookup, px, py, pz, 
                 j = next_segment_after(t0, step, u_offset, j, cell_end)
                 continue
         n_useful += not empty
-        value = trilinear(field, qx, qy, qz)
+        value = trilinear_bricked(bricks, shape, qx, qy, qz)
         n_samples += 1
         tau += extinction_at(extinction, lookup, value) * (tb - ta)
         if not rouletted and tau > ROULETTE_DEPTH:
@@ -270,11 +270,11 @@ def environment_radiance(env_kind, env_colors, env_image, dx, dy, dz):
 
 
 @njit(**JIT)
-def event_frame(field, world_to_index, gradient_to_world, px, py, pz, dx, dy, dz):
+def event_frame(bricks, shape, world_to_index, gradient_to_world, px, py, pz, dx, dy, dz):
     """Scalar value, unit normal (facing the incoming ray) and world gradient magnitude at p."""
     ix, iy, iz = to_index(world_to_index, px, py, pz)
-    value = trilinear(field, ix, iy, iz)
-    gi, gj, gk = gradient_index(field, ix, iy, iz)
+    value = trilinear_bricked(bricks, shape, ix, iy, iz)
+    gi, gj, gk = gradient_bricked(bricks, shape, ix, iy, iz)
     g = gradient_to_world
     gx = g[0, 0] * gi + g[0, 1] * gj + g[0, 2] * gk
     gy = g[1, 0] * gi + g[1, 1] * gj + g[1, 2] * gk
@@ -315,7 +315,7 @@ def lobe(weight, g, nx, ny, nz, dx, dy, dz, lx, ly, lz):
 
 
 @njit(**JIT)
-def scattered_light(field, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors, env_image,
+def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors, env_image,
                     step, g, weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim, skip, counts,
                     row):
     """Single-scattered radiance S at p before the albedo: direct lights plus one environment direction."""
@@ -339,7 +339,7 @@ def scattered_light(field, cells, world_to_index, extinction, lookup, lights, en
         if f <= 0.0:
             continue
         dim = base_dim + 16 + 2 * light
-        t = transmittance(field, cells, world_to_index, extinction, lookup, px, py, pz, lx, ly, lz, distance, step,
+        t = transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, lx, ly, lz, distance, step,
                           uniform(seed, pixel, sample, dim), uniform(seed, pixel, sample, dim + 1), skip, counts, row)
         scale = f * falloff * t
         s0 += scale * lights[light, 4]
@@ -353,7 +353,7 @@ def scattered_light(field, cells, world_to_index, extinction, lookup, lights, en
         wx, wy, wz = sample_cosine(nx, ny, nz, u1, u2)
     else:
         wx, wy, wz = sample_henyey_greenstein(dx, dy, dz, g, u1, u2)
-    t = transmittance(field, cells, world_to_index, extinction, lookup, px, py, pz, wx, wy, wz, np.inf, step,
+    t = transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, wx, wy, wz, np.inf, step,
                       uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4), skip, counts, row)
     if t > 0.0:
         e0, e1, e2 = environment_radiance(env_kind, env_colors, env_image, wx, wy, wz)
@@ -372,7 +372,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
     ``scratch`` (SCRATCH,) float64 is the row's work space (allocated once per row, not per path):
     event thresholds, level thresholds, event distances, level distances.
     """
-    field, world_to_index, _index_to_world, gradient_to_world = volume
+    _field, world_to_index, _index_to_world, gradient_to_world, bricks, shape = volume
     albedo, extinction, lookup = transfer
     pixel = row * width + col
     # camera ray (box filter over the pixel's square)
@@ -407,7 +407,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
 
     ox, oy, oz = to_index(world_to_index, px, py, pz)
     ix, iy, iz = to_index_direction(world_to_index, dx, dy, dz)
-    t0, t1 = box_interval(field.shape, ox, oy, oz, ix, iy, iz)
+    t0, t1 = box_interval(shape, ox, oy, oz, ix, iy, iz)
     tau = 0.0
     next_event = 0
     next_level = 0
@@ -432,7 +432,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
                     j = next_segment_after(t0, step, u_offset, j, cell_end)
                     continue
             n_useful += not empty
-            value = trilinear(field, qx, qy, qz)
+            value = trilinear_bricked(bricks, shape, qx, qy, qz)
             n_samples += 1
             sigma = extinction_at(extinction, lookup, value)
             dtau = sigma * (tb - ta)
@@ -460,12 +460,12 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
             r2 += b2
             continue
         qx, qy, qz = px + t * dx, py + t * dy, pz + t * dz
-        value, nx, ny, nz, magnitude = event_frame(field, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
+        value, nx, ny, nz, magnitude = event_frame(bricks, shape, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
         counts[row, 0] += 7
         counts[row, 1] += 7
         a0, a1, a2 = albedo_at(albedo, lookup, value)
         weight = surface_weight(shading, gradient_scale, magnitude)
-        s0, s1, s2 = scattered_light(field, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors,
+        s0, s1, s2 = scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors,
                                      env_image, step, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz,
                                      seed, pixel, sample, DIM_EVENT + DIM_EVENT_STRIDE * k, skip, counts, row)
         r0 += a0 * s0
@@ -490,7 +490,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
         if t < 0.0:
             continue
         qx, qy, qz = px + t * dx, py + t * dy, pz + t * dz
-        value, nx, ny, nz, magnitude = event_frame(field, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
+        value, nx, ny, nz, magnitude = event_frame(bricks, shape, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
         counts[row, 0] += 7
         counts[row, 1] += 7
         block = N_BASE_CHANNELS + BLOCK * (2 + k)
@@ -523,7 +523,8 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
     Parameters
     ----------
     volume : VolumeArrays (field (nx, ny, nz) float32; world_to_index (3, 4); index_to_world (3, 4);
-        gradient_to_world (3, 3); float64)
+        gradient_to_world (3, 3) float64; bricks (gx, gy, gz, 9, 9, 9) float32 the same field bricked;
+        shape (3,) int64)
     transfer : TransferArrays (albedo (n, 3) float32; extinction (n,) float32 per mm; lookup (2,) float64)
     cells : (cx, cy, cz) float32 macrocell maxima from :func:`build_macrocells`
     skip : bool; step over empty cells (exact); false marches through them (for measurements)

@@ -72,7 +72,9 @@ def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
     if dtype.name.replace(">", "").replace("<", "") not in ACCEPTED_DTYPES:
         raise UserError(f"{path}: type: {type_name!r} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
 
-    n_bytes = int(np.prod(sizes)) * (dtype.itemsize + 4)
+    from ..volume import BYTES_PER_VOXEL
+
+    n_bytes = int(np.prod(sizes)) * (dtype.itemsize + BYTES_PER_VOXEL)
     if n_bytes > budget_bytes:
         raise UserError(
             f"{path}: sizes: {sizes} needs {n_bytes / 2**20:.0f} MiB, over the memory budget of "
