@@ -15,6 +15,18 @@ INV_4PI = 1.0 / (4.0 * math.pi)
 
 
 @njit(**JIT)
+def blend_corners(v000, v100, v010, v110, v001, v101, v011, v111, fx, fy, fz):
+    """Trilinear blend of a cell's 8 corner values (v_ijk at offsets i, j, k) at fractions fx, fy, fz."""
+    c00 = v000 * (1.0 - fx) + v100 * fx
+    c10 = v010 * (1.0 - fx) + v110 * fx
+    c01 = v001 * (1.0 - fx) + v101 * fx
+    c11 = v011 * (1.0 - fx) + v111 * fx
+    c0 = c00 * (1.0 - fy) + c10 * fy
+    c1 = c01 * (1.0 - fy) + c11 * fy
+    return c0 * (1.0 - fz) + c1 * fz
+
+
+@njit(**JIT)
 def trilinear(field, x, y, z):
     """Trilinear value of ``field`` (nx, ny, nz) float32 at index point (x, y, z), clamped to the box."""
     nx, ny, nz = field.shape
@@ -24,16 +36,9 @@ def trilinear(field, x, y, z):
     i = min(int(x), nx - 2)
     j = min(int(y), ny - 2)
     k = min(int(z), nz - 2)
-    fx = x - i
-    fy = y - j
-    fz = z - k
-    c00 = field[i, j, k] * (1.0 - fx) + field[i + 1, j, k] * fx
-    c10 = field[i, j + 1, k] * (1.0 - fx) + field[i + 1, j + 1, k] * fx
-    c01 = field[i, j, k + 1] * (1.0 - fx) + field[i + 1, j, k + 1] * fx
-    c11 = field[i, j + 1, k + 1] * (1.0 - fx) + field[i + 1, j + 1, k + 1] * fx
-    c0 = c00 * (1.0 - fy) + c10 * fy
-    c1 = c01 * (1.0 - fy) + c11 * fy
-    return c0 * (1.0 - fz) + c1 * fz
+    return blend_corners(field[i, j, k], field[i + 1, j, k], field[i, j + 1, k], field[i + 1, j + 1, k],
+                         field[i, j, k + 1], field[i + 1, j, k + 1], field[i, j + 1, k + 1], field[i + 1, j + 1, k + 1],
+                         x - i, y - j, z - k)
 
 
 @njit(**JIT)
@@ -99,13 +104,9 @@ def trilinear_bricked(bricks, shape, x, y, z):
     b, j = j // BRICK, j % BRICK
     c, k = k // BRICK, k % BRICK
     brick = bricks[a, b, c]
-    c00 = brick[i, j, k] * (1.0 - fx) + brick[i + 1, j, k] * fx
-    c10 = brick[i, j + 1, k] * (1.0 - fx) + brick[i + 1, j + 1, k] * fx
-    c01 = brick[i, j, k + 1] * (1.0 - fx) + brick[i + 1, j, k + 1] * fx
-    c11 = brick[i, j + 1, k + 1] * (1.0 - fx) + brick[i + 1, j + 1, k + 1] * fx
-    c0 = c00 * (1.0 - fy) + c10 * fy
-    c1 = c01 * (1.0 - fy) + c11 * fy
-    return c0 * (1.0 - fz) + c1 * fz
+    return blend_corners(brick[i, j, k], brick[i + 1, j, k], brick[i, j + 1, k], brick[i + 1, j + 1, k],
+                         brick[i, j, k + 1], brick[i + 1, j, k + 1], brick[i, j + 1, k + 1], brick[i + 1, j + 1, k + 1],
+                         fx, fy, fz)
 
 
 @njit(**JIT)
