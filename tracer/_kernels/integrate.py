@@ -514,6 +514,21 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
     acc[row, col, 6] += alpha
 
 
+@njit(**JIT)
+def row_stride(n_rows):
+    """A step coprime with n_rows near 0.618 n_rows: slot -> (slot * step) mod n_rows is a scattered permutation."""
+    if n_rows <= 2:
+        return 1
+    step = max(1, int(n_rows * 0.6180339887))
+    while True:
+        a, b = step, n_rows
+        while b:
+            a, b = b, a % b
+        if a == 1:
+            return step
+        step += 1
+
+
 @njit(**JIT_PARALLEL)
 def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                 background_is_env, shading, n_events, levels, step, g, gradient_scale, seed, row_start, row_end,
@@ -542,7 +557,12 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
     """
     width = acc.shape[1]
     height = acc.shape[0]
-    for row in prange(row_start, row_end):
+    n_rows = row_end - row_start
+    stride = row_stride(n_rows)
+    for slot in prange(n_rows):
+        # visit rows in a scattered order so that each thread's share of the range mixes cheap
+        # (background) and costly rows; which thread adds to a row never changes its bits
+        row = row_start + (slot * stride) % n_rows
         scratch = np.empty(SCRATCH)
         for col in range(width):
             for sample in range(sample_start, sample_end):
