@@ -1,8 +1,9 @@
 """Dataset throughput: items per second serially and with 1 and 2 Dask workers, in one run.
 
-    python benchmarks/dataset_scaling.py [--items 12] [--size 64]
+    python benchmarks/dataset_scaling.py [--items 24] [--size 64]
 
-Every figure comes from this run on this machine; the kernels are compiled before timing.
+Every figure comes from this run on this machine; the kernels are compiled before timing; the
+cluster modes include starting and stopping their local cluster (about a second).
 Results go to benchmarks/results/dataset_scaling.json.
 """
 
@@ -43,7 +44,7 @@ train = 1.0
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--items", type=int, default=12)
+    parser.add_argument("--items", type=int, default=24)
     parser.add_argument("--size", type=int, default=64)
     args = parser.parse_args()
 
