@@ -49,10 +49,7 @@ def render(
     loaded = load_scene(scene).with_overrides(spp=spp, seed=seed, width=width, height=height)
     name = name or scene.stem
     checkpoint = out / f"{name}.checkpoint.npz"
-    if not resume and checkpoint_every is None:
-        checkpoint_path = None
-    else:
-        checkpoint_path = checkpoint
+    checkpoint_path = checkpoint      # written every --checkpoint-every seconds, and always on Ctrl-C
     if checkpoint_every is not None and checkpoint_every <= 0:
         from ..errors import UserError
 
