@@ -112,3 +112,29 @@ def test_kill_and_resume_from_the_command_line_is_bit_exact(tmp_path, root):
     assert resumed.spp == uninterrupted.spp == 96
     assert_same_bits(resumed, uninterrupted)
     assert not checkpoint.exists()
+
+
+@pytest.mark.slow
+def test_ctrl_c_from_the_command_line_writes_a_valid_render_and_resumes(tmp_path, root):
+    """SIGINT mid-render: exit 130, a valid NPZ with its true spp, a checkpoint; --resume finishes bit-exactly."""
+    scene = tmp_path / "scene.toml"
+    scene.write_text((root / "examples" / "plume.toml").read_text()
+                     .replace("../sample_volumes/", f"{root}/sample_volumes/")
+                     .replace("../transfer_functions/", f"{root}/transfer_functions/"))
+    command = [sys.executable, "-m", "tracer", "render", str(scene), "--width", "24", "--height", "24",
+               "--spp", "4000", "--out", str(tmp_path / "out")]
+    render(blob_scene(width=2, height=2, spp=1))       # the kernel is compiled into the shared cache first
+    process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    time.sleep(3.0)
+    process.send_signal(signal.SIGINT)
+    stdout, _ = process.communicate(timeout=120)
+    assert process.returncode == 130, stdout
+    partial = read_npz(tmp_path / "out" / "scene.npz")
+    assert 0 < partial.spp < 4000 and partial.meta["stopped"] == "interrupted"
+    assert (tmp_path / "out" / "scene.checkpoint.npz").exists()
+    subprocess.run(command + ["--resume"], check=True, capture_output=True, timeout=300)
+    resumed = read_npz(tmp_path / "out" / "scene.npz")
+    assert resumed.spp == 4000 and not (tmp_path / "out" / "scene.checkpoint.npz").exists()
+    from tracer import load_scene
+
+    assert_same_bits(resumed, render(load_scene(scene).with_overrides(width=24, height=24), spp=4000))

@@ -157,6 +157,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
 
     arguments, skip = kernel_arguments(scene, skipping)
     counts = np.zeros((height, 2), np.int64)
+    done = np.zeros(1, np.int64)
     start = time.perf_counter()
     last_checkpoint = start
     stopped = "spp"
@@ -175,7 +176,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
                     for r0 in range(0, height, rows_per_call):
                         r1 = min(height, r0 + rows_per_call)
                         t0 = time.perf_counter()
-                        render_rows(*arguments, seed, r0, r1, s0, s0 + n, skip, accumulator.sums, counts)
+                        render_rows(*arguments, seed, r0, r1, s0, s0 + n, skip, accumulator.sums, counts, done)
                         dt = time.perf_counter() - t0
                         rate = dt / ((r1 - r0) * n)
                         seconds_per_row_sample = rate if seconds_per_row_sample is None else min(rate, 2 * seconds_per_row_sample) * 0.5 + seconds_per_row_sample * 0.5
@@ -184,10 +185,16 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
                                                        (accumulator.n_samples * height + r1 * n) * width,
                                                        time.perf_counter() - start, error))
                 except KeyboardInterrupt:
-                    if backup is not None:
+                    # a kernel call is never cut short, and Python raises the interrupt only after it
+                    # returns; ``done`` (written by the kernel itself) says how far the pass got: count a
+                    # complete pass, undo a partial one, so the sums always match n_samples
+                    if done[0] == height:
+                        accumulator.n_samples += n
+                    elif done[0] > 0:
                         accumulator.sums[...] = backup
                     raise
                 accumulator.n_samples += n
+                done[0] = 0
                 elapsed = time.perf_counter() - start
                 if targeted and accumulator.n_samples >= 2:
                     noise = residual_noise(accumulator.to_buffers())

@@ -532,7 +532,7 @@ def row_stride(n_rows):
 @njit(**JIT_PARALLEL)
 def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                 background_is_env, shading, n_events, levels, step, g, gradient_scale, seed, row_start, row_end,
-                sample_start, sample_end, skip, acc, counts):
+                sample_start, sample_end, skip, acc, counts, done):
     """Add samples [sample_start, sample_end) of rows [row_start, row_end) to ``acc``.
 
     Parameters
@@ -554,6 +554,8 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
         any thread count or pass split.
     counts : (H, 2) int64; per row, the field samples taken (march, shadow and environment rays, and
         the 7 of value and gradient at each event) and those of them that fell in non-empty macrocells.
+    done : (1,) int64; set to ``row_end`` as the last act of the call. A Ctrl-C arriving while the kernel
+        runs is raised by Python only after it returns, so the caller reads here whether the rows were added.
     """
     width = acc.shape[1]
     height = acc.shape[0]
@@ -569,3 +571,4 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
                 trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                            background_is_env, shading, n_events, levels, step, g, gradient_scale, seed,
                            row, col, width, height, sample, skip, acc, counts, scratch)
+    done[0] = row_end
