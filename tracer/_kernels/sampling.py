@@ -65,6 +65,8 @@ def gradient_index(field, x, y, z):
 #: Voxel intervals per brick; bricks store BRICK + 1 samples per axis (one shared with the next brick),
 #: so the 8 voxels of any trilinear lookup lie in one brick.
 BRICK = 8
+BRICK_SHIFT = 3
+BRICK_MASK = BRICK - 1
 
 
 @njit(**JIT_PARALLEL)
@@ -100,9 +102,9 @@ def trilinear_bricked(bricks, shape, x, y, z):
     fx = x - i
     fy = y - j
     fz = z - k
-    a, i = i // BRICK, i % BRICK
-    b, j = j // BRICK, j % BRICK
-    c, k = k // BRICK, k % BRICK
+    a, i = i >> BRICK_SHIFT, i & BRICK_MASK       # i // BRICK, i % BRICK for i >= 0
+    b, j = j >> BRICK_SHIFT, j & BRICK_MASK
+    c, k = k >> BRICK_SHIFT, k & BRICK_MASK
     brick = bricks[a, b, c]
     return blend_corners(brick[i, j, k], brick[i + 1, j, k], brick[i, j + 1, k], brick[i + 1, j + 1, k],
                          brick[i, j, k + 1], brick[i + 1, j, k + 1], brick[i, j + 1, k + 1], brick[i + 1, j + 1, k + 1],
