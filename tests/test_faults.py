@@ -123,7 +123,7 @@ def test_local_clusters_bind_to_loopback(tmp_path):
 
 
 def test_no_pickle_and_no_eval_in_the_package():
-    """Safety rules: no allow_pickle=True, no eval/exec of anything, anywhere in the package."""
+    """Safety rules: the package never unpickles and never evaluates text as code."""
     offenders = []
     for path in (ROOT / "tracer").rglob("*.py"):
         text = path.read_text()

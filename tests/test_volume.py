@@ -180,8 +180,11 @@ def _npy_2d(tmp_path):
 
 
 def _npy_object(tmp_path):
+    """An .npy whose header declares Python objects (written by hand: nothing here pickles)."""
     path = tmp_path / "obj.npy"
-    np.save(path, np.array([[[{"a": 1}]]], dtype=object), allow_pickle=True)
+    with open(path, "wb") as handle:
+        np.lib.format.write_array_header_1_0(handle, {"descr": "|O", "fortran_order": False, "shape": (2, 2, 2)})
+        handle.write(b"\x80\x04N." * 8)
     return path
 
 
