@@ -8,6 +8,7 @@ writes checkpoints and resumes from them bit-exactly.
 
 from __future__ import annotations
 
+import functools
 import math
 import time
 from dataclasses import dataclass
@@ -144,14 +145,14 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
     scene = scene.with_overrides(seed=seed)
     height, width = scene.camera.image_size
     n_levels = len(settings.feature_levels)
-    fingerprint = _fingerprint(scene) if checkpoint_path is not None else ""
+    fingerprint = functools.lru_cache(maxsize=1)(lambda: _fingerprint(scene))   # hashed only if a checkpoint is touched
 
     accumulator = None
     previous_seconds = 0.0
     if resume:
         if checkpoint_path is None or not Path(checkpoint_path).exists():
             raise UserError(f"{checkpoint_path}: no checkpoint to resume from")
-        accumulator, previous_seconds = _load_checkpoint(checkpoint_path, fingerprint, sample_offset)
+        accumulator, previous_seconds = _load_checkpoint(checkpoint_path, fingerprint(), sample_offset)
     if accumulator is None:
         accumulator = Accumulator(height, width, n_levels, sample_offset=sample_offset)
 
@@ -204,7 +205,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
                                                elapsed, error))
                 if checkpoint_path is not None and checkpoint_every is not None and \
                         time.perf_counter() - last_checkpoint >= checkpoint_every and accumulator.n_samples < spp_cap:
-                    _save_checkpoint(checkpoint_path, accumulator, fingerprint, previous_seconds + elapsed)
+                    _save_checkpoint(checkpoint_path, accumulator, fingerprint(), previous_seconds + elapsed)
                     last_checkpoint = time.perf_counter()
                 if target_error is not None and error is not None and error <= target_error:
                     stopped = "target_error"
@@ -231,7 +232,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, sam
     if checkpoint_path is not None and stopped != "interrupted":
         Path(checkpoint_path).unlink(missing_ok=True)
     elif checkpoint_path is not None and stopped == "interrupted":
-        _save_checkpoint(checkpoint_path, accumulator, fingerprint, seconds)
+        _save_checkpoint(checkpoint_path, accumulator, fingerprint(), seconds)
 
     meta = {
         "tool": "tracer", "version": __version__,

@@ -8,7 +8,7 @@ import pytest
 from numba import njit
 
 from tracer._kernels.rng import uniform, uniform_numpy
-from tracer._kernels.sampling import (gradient_index, henyey_greenstein, sample_cosine, sample_henyey_greenstein,
+from tracer._kernels.sampling import (gradient_bricked, henyey_greenstein, sample_cosine, sample_henyey_greenstein,
                                       trilinear, trilinear_bricked)
 
 
@@ -35,20 +35,24 @@ def test_trilinear_equals_scipy_map_coordinates(rng):
 
 
 @njit(cache=False)
-def _gradients(field):
-    out = np.empty(field.shape + (3,))
-    for i in range(field.shape[0]):
-        for j in range(field.shape[1]):
-            for k in range(field.shape[2]):
-                out[i, j, k] = gradient_index(field, float(i), float(j), float(k))
+def _gradients(bricks, shape):
+    out = np.empty((shape[0], shape[1], shape[2], 3))
+    for i in range(shape[0]):
+        for j in range(shape[1]):
+            for k in range(shape[2]):
+                out[i, j, k] = gradient_bricked(bricks, shape, float(i), float(j), float(k))
     return out
 
 
 def test_gradient_at_voxel_centres_equals_numpy_gradient(rng):
     """numpy.gradient: central differences inside, first-order one-sided differences at the edges."""
-    field = rng.normal(size=(6, 8, 5)).astype(np.float32)
-    expected = np.stack(np.gradient(field.astype(np.float64)), axis=-1)
-    np.testing.assert_allclose(_gradients(field), expected, atol=1e-5)
+    from tracer.volume import Volume
+
+    for shape in [(6, 8, 5), (11, 19, 10)]:         # the second spans several bricks
+        field = rng.normal(size=shape).astype(np.float32)
+        arrays = Volume(field).to_arrays()
+        expected = np.stack(np.gradient(field.astype(np.float64)), axis=-1)
+        np.testing.assert_allclose(_gradients(arrays.bricks, arrays.shape), expected, atol=1e-5)
 
 
 @njit(cache=False)

@@ -41,27 +41,6 @@ def trilinear(field, x, y, z):
                          x - i, y - j, z - k)
 
 
-@njit(**JIT)
-def gradient_index(field, x, y, z):
-    """Central differences of the trilinear field, one voxel either side, in value per voxel.
-
-    At the box faces the stencil is clamped and divided by its true width, so at voxel
-    centres this equals ``numpy.gradient`` (first-order one-sided differences at the edges).
-    Returns (gx, gy, gz).
-    """
-    nx, ny, nz = field.shape
-    xp = min(x + 1.0, nx - 1.0)
-    xm = max(x - 1.0, 0.0)
-    yp = min(y + 1.0, ny - 1.0)
-    ym = max(y - 1.0, 0.0)
-    zp = min(z + 1.0, nz - 1.0)
-    zm = max(z - 1.0, 0.0)
-    gx = (trilinear(field, xp, y, z) - trilinear(field, xm, y, z)) / max(xp - xm, 1e-12)
-    gy = (trilinear(field, x, yp, z) - trilinear(field, x, ym, z)) / max(yp - ym, 1e-12)
-    gz = (trilinear(field, x, y, zp) - trilinear(field, x, y, zm)) / max(zp - zm, 1e-12)
-    return gx, gy, gz
-
-
 #: Voxel intervals per brick; bricks store BRICK + 1 samples per axis (one shared with the next brick),
 #: so the 8 voxels of any trilinear lookup lie in one brick.
 BRICK = 8
@@ -113,7 +92,12 @@ def trilinear_bricked(bricks, shape, x, y, z):
 
 @njit(**JIT)
 def gradient_bricked(bricks, shape, x, y, z):
-    """:func:`gradient_index` on the bricked copy of the field."""
+    """Central differences of the trilinear field, one voxel either side, in value per voxel.
+
+    At the box faces the stencil is clamped and divided by its true width, so at voxel centres
+    this equals ``numpy.gradient`` (first-order one-sided differences at the edges). Samples the
+    bricked copy of the field; returns (gx, gy, gz).
+    """
     xp = min(x + 1.0, shape[0] - 1.0)
     xm = max(x - 1.0, 0.0)
     yp = min(y + 1.0, shape[1] - 1.0)

@@ -100,7 +100,12 @@ class DatasetPlan:
         return hashlib.sha256(json.dumps(self.raw, sort_keys=True, default=str).encode()).hexdigest()
 
     # --- items -----------------------------------------------------------------------
-    def items(self) -> list[ItemSpec]:
+    def items(self) -> tuple[ItemSpec, ...]:
+        """Every item of the plan, in index order (worked out once per plan, then kept)."""
+        return self._items
+
+    @cached_property
+    def _items(self) -> tuple[ItemSpec, ...]:
         items = []
         index = 0
         n_variants = 1 + self.tf_variants
@@ -113,7 +118,7 @@ class DatasetPlan:
                         item_id = f"{index:05d}-{volume_name}-tf{t}-var{variant}-view{view:03d}"
                         items.append(ItemSpec(index, item_id, v, t, variant, view, seed, ""))
                         index += 1
-        return self._assign_splits(items)
+        return tuple(self._assign_splits(items))
 
     def _assign_splits(self, items: list[ItemSpec]) -> list[ItemSpec]:
         """Deterministic splits by hashed order: whole volumes, or single views, never one view in two splits."""
