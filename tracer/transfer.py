@@ -8,7 +8,6 @@ Engel et al., *Real-Time Volume Graphics*, 2006).
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import NamedTuple
@@ -105,16 +104,6 @@ class TransferFunction:
             "opacity": [[float(v), float(a)] for v, a in zip(self.opacity_values, self.opacity)],
             "color": [[float(v), [float(x) for x in c]] for v, c in zip(self.color_values, self.colors)],
         }
-
-    def to_toml(self) -> str:
-        lines = [f"name = {json.dumps(self.name)}", f"reference_length_mm = {self.reference_length_mm!r}",
-                 f"scale = {json.dumps(self.scale)}"]
-        if self.notes:
-            lines.append(f"notes = {json.dumps(self.notes)}")
-        lines.append("opacity = [" + ", ".join(f"[{v!r}, {a!r}]" for v, a in self.to_dict()["opacity"]) + "]")
-        lines.append("color = [" + ", ".join(f"[{v!r}, [{c[0]!r}, {c[1]!r}, {c[2]!r}]]"
-                                              for v, c in self.to_dict()["color"]) + "]")
-        return "\n".join(lines) + "\n"
 
 
 def opacity_to_extinction(opacity, reference_length_mm: float = 1.0) -> np.ndarray:
