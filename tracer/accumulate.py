@@ -43,8 +43,12 @@ class Accumulator:
         with np.errstate(invalid="ignore", divide="ignore"):
             mean = s[..., 0:3] / max(n, 1)
             if n > 1:
-                variance = (s[..., 3:6] - s[..., 0:3] * mean) / (n - 1) / n
-                variance = np.maximum(variance, 0.0)
+                spread = s[..., 3:6] - s[..., 0:3] * mean
+                # below the rounding bound of the two running sums (n ulps of the square sum: recursive
+                # summation, Higham 2002) the difference is rounding, not noise (identical samples, e.g.
+                # background pixels): report it as exactly zero
+                spread[spread <= 2 * n * np.finfo(np.float64).eps * s[..., 3:6]] = 0.0
+                variance = spread / (n - 1) / n
             else:
                 variance = np.zeros_like(mean)
             out["radiance"] = mean

@@ -42,8 +42,9 @@ def write_contact_sheet(frame: Frame, path, exposure: float = 0.0, title: str | 
         elif key == "radiance_variance":
             variance = data.mean(axis=2)
             positive = variance[variance > 0]
-            floor = np.percentile(positive, 1) if positive.size else 1e-12
-            values = np.log10(np.maximum(variance, floor))
+            # the colour range spans the bulk of the noisy pixels, so a few outliers do not squash it
+            low, high = np.percentile(positive, [1, 99.5]) if positive.size else (1e-12, 1e-11)
+            values = np.log10(np.clip(variance, low, max(high, low * 10)))
             colorbar = axis.imshow(values, cmap="magma")
         elif key.endswith("_normal"):
             axis.imshow(np.clip(data * 0.5 + 0.5, 0, 1) * (np.linalg.norm(data, axis=2, keepdims=True) > 0))
