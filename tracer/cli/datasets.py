@@ -24,9 +24,12 @@ def dataset(
     scheduler: Annotated[Optional[str], typer.Option(help="Use an existing Dask scheduler, tcp://HOST:PORT.")] = None,
     dashboard: Annotated[bool, typer.Option("--dashboard", help="Serve the Dask dashboard on 127.0.0.1:8787.")] = False,
 ):
-    """Build a dataset: per view, noisy inputs at every spp of the ladder and a certified reference,
-    with independent noise, a JSON-Lines manifest with checksums, and splits. Serial by default;
-    --workers N or --scheduler ADDRESS for Dask."""
+    """Build a dataset: per view, noisy inputs at every spp of a ladder and a certified reference.
+
+    Inputs and reference have independent noise; a JSON-Lines manifest lists every file with its
+    checksum; items are split by view or by volume. Serial by default; --workers N or --scheduler
+    ADDRESS for Dask. --resume continues a killed run.
+    """
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
     from ..dataset.cluster import check_scheduler_address

@@ -33,8 +33,12 @@ def score(
     json_out: Annotated[Optional[Path], typer.Option("--json", help="Write the scores as JSON here.")] = None,
     plot: Annotated[Optional[Path], typer.Option(help="Write PSNR against spp and an error heat map here (PNG).")] = None,
 ):
-    """Score a denoised image against a reference: PSNR and SSIM (display-referred: exposure, clamp, sRGB),
-    MSE and relative MSE (linear); with --ladder, the equal-quality spp and, with --seconds, the speedup."""
+    """Score a denoised image against a reference: PSNR, SSIM, MSE, relative MSE, equal-quality spp.
+
+    PSNR and SSIM are taken on the display-referred image (exposure, clamp, sRGB curve); MSE and
+    relative MSE on linear radiance. With --ladder, the spp a plain render needs for the same PSNR;
+    with --seconds, the speedup over rendering that many samples.
+    """
     import json
 
     from ..io.atomic import atomic_path
@@ -123,8 +127,11 @@ def denoise(
     exposure: Annotated[float, typer.Option(help="Exposure in stops for the PNG preview.")] = 0.0,
     threads: Annotated[Optional[int], typer.Option(help="numba threads.")] = None,
 ):
-    """The classical feature-guided baseline: the edge-avoiding a-trous wavelet filter (Dammertz et al. 2010),
-    stopping at edges of normals, albedo, depth or positions, guided by the variance buffer."""
+    """Filter a render with the classical feature-guided baseline (edge-avoiding a-trous wavelets).
+
+    The filter of Dammertz et al. (2010) stops at edges of normals, albedo, depth or positions and is
+    guided by the variance buffer; --color-only filters with radiance and variance alone.
+    """
     from ..buffers import Frame
     from ..denoise import DenoiseSettings
     from ..denoise import denoise as run

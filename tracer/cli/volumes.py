@@ -13,6 +13,9 @@ from .common import MEDICAL_CAUTION, console, error_console, reports_user_errors
 def register(app: typer.Typer) -> None:
     app.command("info")(info)
     app.command("tf-check")(tf_check)
+
+
+def register_samples(app: typer.Typer) -> None:
     app.command("samples")(samples)
 
 
