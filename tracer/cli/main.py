@@ -20,7 +20,7 @@ app = typer.Typer(
     no_args_is_help=True,
     pretty_exceptions_show_locals=False,
     add_completion=False,
-    rich_markup_mode="rich",
+    rich_markup_mode="markdown",
 )
 volumes.register(app)
 rendering.register(app)
