@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 
 from tracer.camera import Camera
@@ -47,3 +49,13 @@ def homogeneous_box_scene(opacity=0.2, size_mm=10.0, width=16, height=16, spp=25
                     width=width, height=height)
     environment = Environment(kind="constant", background=background)
     return Scene(volume, tf, camera, (), environment, RenderSettings(spp=spp, step_mm=step_mm, events=2))
+
+
+def example_scene(folder: Path, root: Path, name: str, extra: str = "") -> Path:
+    """A copy of examples/NAME.toml in ``folder`` with its relative paths made absolute."""
+    text = (root / "examples" / f"{name}.toml").read_text()
+    text = text.replace("../sample_volumes/", f"{root}/sample_volumes/").replace("../transfer_functions/",
+                                                                                 f"{root}/transfer_functions/")
+    path = Path(folder) / f"{name}.toml"
+    path.write_text(text + extra)
+    return path

@@ -12,7 +12,7 @@ import pytest
 from tracer.io.npz import read_npz
 from tracer.rendering import render
 
-from .helpers import blob_scene
+from .helpers import blob_scene, example_scene
 
 
 def assert_same_bits(a, b):
@@ -87,28 +87,25 @@ def test_target_error_stops_when_reached():
 @pytest.mark.slow
 def test_kill_and_resume_from_the_command_line_is_bit_exact(tmp_path, root):
     """kill -9 a render after its first checkpoint, resume it, and compare with an uninterrupted run."""
-    scene = tmp_path / "scene.toml"
-    scene.write_text((root / "examples" / "plume.toml").read_text()
-                     .replace("../sample_volumes/", f"{root}/sample_volumes/")
-                     .replace("../transfer_functions/", f"{root}/transfer_functions/"))
+    scene = example_scene(tmp_path, root, "plume")
     common = [sys.executable, "-m", "tracer", "render", str(scene), "--width", "64", "--height", "64",
               "--spp", "96", "--threads", "2"]
     killed = tmp_path / "killed"
     process = subprocess.Popen(common + ["--out", str(killed), "--checkpoint-every", "0.3"],
                                stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    checkpoint = killed / "scene.checkpoint.npz"
+    checkpoint = killed / "plume.checkpoint.npz"
     deadline = time.time() + 120
     while not checkpoint.exists() and time.time() < deadline and process.poll() is None:
         time.sleep(0.05)
     assert checkpoint.exists(), "no checkpoint appeared"
     os.kill(process.pid, signal.SIGKILL)
     process.wait()
-    assert not (killed / "scene.npz").exists()
+    assert not (killed / "plume.npz").exists()
     assert not [p for p in killed.iterdir() if ".partial-" in p.name]
     subprocess.run(common + ["--out", str(killed), "--resume"], check=True, capture_output=True, timeout=300)
     clean = tmp_path / "clean"
     subprocess.run(common + ["--out", str(clean)], check=True, capture_output=True, timeout=300)
-    resumed, uninterrupted = read_npz(killed / "scene.npz"), read_npz(clean / "scene.npz")
+    resumed, uninterrupted = read_npz(killed / "plume.npz"), read_npz(clean / "plume.npz")
     assert resumed.spp == uninterrupted.spp == 96
     assert_same_bits(resumed, uninterrupted)
     assert not checkpoint.exists()
@@ -117,10 +114,7 @@ def test_kill_and_resume_from_the_command_line_is_bit_exact(tmp_path, root):
 @pytest.mark.slow
 def test_ctrl_c_from_the_command_line_writes_a_valid_render_and_resumes(tmp_path, root):
     """SIGINT mid-render: exit 130, a valid NPZ with its true spp, a checkpoint; --resume finishes bit-exactly."""
-    scene = tmp_path / "scene.toml"
-    scene.write_text((root / "examples" / "plume.toml").read_text()
-                     .replace("../sample_volumes/", f"{root}/sample_volumes/")
-                     .replace("../transfer_functions/", f"{root}/transfer_functions/"))
+    scene = example_scene(tmp_path, root, "plume")
     command = [sys.executable, "-m", "tracer", "render", str(scene), "--width", "24", "--height", "24",
                "--spp", "4000", "--out", str(tmp_path / "out")]
     render(blob_scene(width=2, height=2, spp=1))       # the kernel is compiled into the shared cache first
@@ -129,12 +123,12 @@ def test_ctrl_c_from_the_command_line_writes_a_valid_render_and_resumes(tmp_path
     process.send_signal(signal.SIGINT)
     stdout, _ = process.communicate(timeout=120)
     assert process.returncode == 130, stdout
-    partial = read_npz(tmp_path / "out" / "scene.npz")
+    partial = read_npz(tmp_path / "out" / "plume.npz")
     assert 0 < partial.spp < 4000 and partial.meta["stopped"] == "interrupted"
-    assert (tmp_path / "out" / "scene.checkpoint.npz").exists()
+    assert (tmp_path / "out" / "plume.checkpoint.npz").exists()
     subprocess.run(command + ["--resume"], check=True, capture_output=True, timeout=300)
-    resumed = read_npz(tmp_path / "out" / "scene.npz")
-    assert resumed.spp == 4000 and not (tmp_path / "out" / "scene.checkpoint.npz").exists()
+    resumed = read_npz(tmp_path / "out" / "plume.npz")
+    assert resumed.spp == 4000 and not (tmp_path / "out" / "plume.checkpoint.npz").exists()
     from tracer import load_scene
 
     assert_same_bits(resumed, render(load_scene(scene).with_overrides(width=24, height=24), spp=4000))

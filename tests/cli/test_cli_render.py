@@ -6,15 +6,13 @@ import numpy as np
 
 from tracer.io.npz import read_npz
 
+from ..helpers import example_scene
+
 from .cli_helpers import assert_user_error, invoke
 
 
 def small_scene(tmp_path, root, name="figurine", extra=""):
-    text = (root / "examples" / f"{name}.toml").read_text()
-    text = text.replace("../sample_volumes/", f"{root}/sample_volumes/").replace("../transfer_functions/", f"{root}/transfer_functions/")
-    path = tmp_path / f"{name}.toml"
-    path.write_text(text + extra)
-    return path
+    return example_scene(tmp_path, root, name, extra)
 
 
 def test_render_writes_every_format_and_the_sheet(tmp_path, root):
