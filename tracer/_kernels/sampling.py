@@ -27,18 +27,25 @@ def blend_corners(v000, v100, v010, v110, v001, v101, v011, v111, fx, fy, fz):
 
 
 @njit(**JIT)
-def trilinear(field, x, y, z):
-    """Trilinear value of ``field`` (nx, ny, nz) float32 at index point (x, y, z), clamped to the box."""
-    nx, ny, nz = field.shape
+def locate(nx, ny, nz, x, y, z):
+    """The cell of index point (x, y, z), clamped to the box of an (nx, ny, nz) field: its lower
+    corner (i, j, k) and the fractions (fx, fy, fz) inside it."""
     x = min(max(x, 0.0), nx - 1.0)
     y = min(max(y, 0.0), ny - 1.0)
     z = min(max(z, 0.0), nz - 1.0)
     i = min(int(x), nx - 2)
     j = min(int(y), ny - 2)
     k = min(int(z), nz - 2)
+    return i, j, k, x - i, y - j, z - k
+
+
+@njit(**JIT)
+def trilinear(field, x, y, z):
+    """Trilinear value of ``field`` (nx, ny, nz) float32 at index point (x, y, z), clamped to the box."""
+    i, j, k, fx, fy, fz = locate(field.shape[0], field.shape[1], field.shape[2], x, y, z)
     return blend_corners(field[i, j, k], field[i + 1, j, k], field[i, j + 1, k], field[i + 1, j + 1, k],
                          field[i, j, k + 1], field[i + 1, j, k + 1], field[i, j + 1, k + 1], field[i + 1, j + 1, k + 1],
-                         x - i, y - j, z - k)
+                         fx, fy, fz)
 
 
 #: Voxel intervals per brick; bricks store BRICK + 1 samples per axis (one shared with the next brick),
@@ -71,16 +78,7 @@ def make_bricks(field, out):
 @njit(**JIT)
 def trilinear_bricked(bricks, shape, x, y, z):
     """:func:`trilinear` on the bricked copy of the field; ``shape`` (3,) is the field's shape. Same values."""
-    nx, ny, nz = shape[0], shape[1], shape[2]
-    x = min(max(x, 0.0), nx - 1.0)
-    y = min(max(y, 0.0), ny - 1.0)
-    z = min(max(z, 0.0), nz - 1.0)
-    i = min(int(x), nx - 2)
-    j = min(int(y), ny - 2)
-    k = min(int(z), nz - 2)
-    fx = x - i
-    fy = y - j
-    fz = z - k
+    i, j, k, fx, fy, fz = locate(shape[0], shape[1], shape[2], x, y, z)
     a, i = i >> BRICK_SHIFT, i & BRICK_MASK       # i // BRICK, i % BRICK for i >= 0
     b, j = j >> BRICK_SHIFT, j & BRICK_MASK
     c, k = k >> BRICK_SHIFT, k & BRICK_MASK
