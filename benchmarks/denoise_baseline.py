@@ -24,10 +24,10 @@ def main() -> None:
     args = parser.parse_args()
 
     from tracer import load_scene
-    from tracer.denoise import DenoiseSettings, denoise
-    from tracer.metrics import score
+    from tracer.scoring.denoise import DenoiseSettings, denoise
+    from tracer.scoring.metrics import score
     from tracer.rendering import render
-    from tracer.score import equal_quality_spp, plot_report, LadderPoint, ScoreReport
+    from tracer.scoring.score import equal_quality_spp, plot_report, LadderPoint, ScoreReport
 
     scene = load_scene(ROOT / "examples" / "figurine.toml").with_overrides(width=args.size, height=args.size)
     started = time.perf_counter()

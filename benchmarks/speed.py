@@ -55,7 +55,7 @@ def march_rate(scene) -> float:
     """The renderer's march alone (no skipping, no shading) along coherent rays: samples per second."""
     from roofline import coherent_march
 
-    from tracer.rendering import kernel_arguments
+    from tracer.rendering.arguments import kernel_arguments
 
     arguments, _ = kernel_arguments(scene)
     volume, transfer, cells = arguments[0], arguments[1], arguments[2]
@@ -90,10 +90,10 @@ def smooth_volume(n: int) -> np.ndarray:
 
 
 def synthetic_scene(n: int):
-    from tracer.camera import Camera
+    from tracer.scene.camera import Camera
     from tracer.scene import Environment, Light, RenderSettings, Scene
-    from tracer.transfer import TransferFunction
-    from tracer.volume import Volume
+    from tracer.optics.transfer import TransferFunction
+    from tracer.volumes import Volume
 
     volume = Volume(smooth_volume(n), directions=np.eye(3) * (64.0 / (n - 1)), origin=(-32.0, -32.0, -32.0))
     tf = TransferFunction(np.array([0.0, 0.3, 1.0]), np.array([0.0, 0.05, 0.3]), np.array([0.0, 1.0]),
@@ -101,7 +101,7 @@ def synthetic_scene(n: int):
     camera = Camera(position=(90.0, -120.0, 60.0), target=(0.0, 0.0, 0.0), fov_deg=30.0, width=128, height=128)
     light = Light("directional", (0.0, -0.6, 0.8), (2.0, 2.0, 2.0))
     return Scene(volume, tf, camera, (light,), Environment("constant", ((0.2, 0.2, 0.2),) * 3),
-                 RenderSettings(spp=4, step_mm=64.0 / (n - 1) / 2, shading="phase"))
+                 RenderSettings(spp=4, step_mm=64.0 / (n - 1) / 2, scattering="medium"))
 
 
 def start_times() -> dict:

@@ -6,10 +6,10 @@ from pathlib import Path
 
 import numpy as np
 
-from tracer.camera import Camera
+from tracer.scene.camera import Camera
 from tracer.scene import Environment, Light, RenderSettings, Scene
-from tracer.transfer import TransferFunction
-from tracer.volume import Volume
+from tracer.optics.transfer import TransferFunction
+from tracer.volumes import Volume
 
 
 def blob_volume(n=12, spacing=(1.0, 0.8, 1.2)) -> Volume:
@@ -33,7 +33,7 @@ def blob_scene(width=6, height=6, spp=64, **settings) -> Scene:
     toward = np.array([0.5, -0.5, 0.7])
     lights = (Light("directional", tuple(toward / np.linalg.norm(toward)), (2.0, 2.0, 2.0)),
               Light("point", (10.0, -10.0, 10.0), (200.0, 150.0, 100.0)))
-    options = dict(spp=spp, step_mm=0.4, events=2, shading="hybrid", phase_g=0.4)
+    options = dict(spp=spp, step_mm=0.4, events=2, scattering="graded", phase_g=0.4)
     options.update(settings)
     return Scene(volume, blob_transfer(), camera, lights, environment, RenderSettings(**options))
 

@@ -118,13 +118,13 @@ def unwritable_output(tmp: Path):
 
 def merge_overlap(tmp: Path):
     from tests.helpers import blob_scene
-    from tracer.io.npz import write_npz
+    from tracer.outputs.npz import write_npz
     from tracer.rendering import render as render_scene
 
     scene_ = blob_scene(width=4, height=4, spp=2)
     write_npz(tmp / "a.npz", render_scene(scene_))
-    write_npz(tmp / "b.npz", render_scene(scene_, sample_offset=1))
-    return ["merge", tmp / "a.npz", tmp / "b.npz", "--out", tmp / "out" / "c"]
+    write_npz(tmp / "b.npz", render_scene(scene_, first_sample=1))
+    return ["pool", tmp / "a.npz", tmp / "b.npz", "--out", tmp / "out" / "c"]
 
 
 def plan(text_replace: dict):
@@ -190,7 +190,7 @@ CASES = [
          exit_code=0),
     # --- outputs, merges, plans ------------------------------------------------------------
     Case("output folder blocked by a file", "output", unwritable_output, "error: {tmp}/blocker/out: cannot create the output folder: {tmp}/blocker is not a folder"),
-    Case("merge of overlapping sample ranges", "merge", merge_overlap, "error: {tmp}/b.npz: samples [1, 3) overlap {tmp}/a.npz's [0, 2); merged renders must cover disjoint sample ranges"),
+    Case("pool of overlapping sample ranges", "pool", merge_overlap, "error: {tmp}/b.npz: samples [1, 3) overlap {tmp}/a.npz's [0, 2); pooled renders must cover disjoint sample ranges"),
     Case("plan fractions", "plan", plan({"train = 0.5": "train = 0.9"}), "error: {tmp}/plan/plan.toml: splits: fractions must add up to 1, got 1.4"),
     Case("plan unknown key", "plan", plan({'name = "test"': 'name = "test"\ncolour = 3'}), "error: {tmp}/plan/plan.toml: unknown key 'colour' in top level"),
 ]

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 
 from tracer.errors import UserError
-from tracer.io.npz import write_npz
+from tracer.outputs.npz import write_npz
 from tracer.rendering import render
 
 from .cli.cli_helpers import assert_user_error, invoke

@@ -16,8 +16,8 @@ from tracer.dataset.plan import parse_plan
 from tracer.errors import UserError
 from tracer.io.tomlfile import read_toml
 from tracer.scene import parse_scene
-from tracer.transfer import parse_transfer_function
-from tracer.volume import load_volume
+from tracer.optics.transfer import parse_transfer_function
+from tracer.volumes import load_volume
 
 ROOT = Path(__file__).resolve().parents[1]
 EXAMPLES = 150
@@ -78,7 +78,7 @@ def mutate(base: dict, paths, draw_value):
 
 SCENE = tomllib.loads((ROOT / "examples" / "plume.toml").read_text())
 SCENE_PATHS = [("camera", "position"), ("camera", "target"), ("camera", "fov_deg"), ("camera", "width"),
-               ("camera", "up"), ("render", "spp"), ("render", "step_mm"), ("render", "events"), ("render", "shading"),
+               ("camera", "up"), ("render", "spp"), ("render", "step_mm"), ("render", "events"), ("render", "scattering"),
                ("render", "phase_g"), ("render", "feature_levels"), ("environment", "kind"), ("environment", "background"),
                ("lights",), ("volume", "path"), ("transfer_function",), ("render", "extra"), ("camera", "height")]
 

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from skimage.metrics import peak_signal_noise_ratio, structural_similarity
 
-from tracer.io.png import to_display
-from tracer.metrics import psnr, score, ssim
+from tracer.outputs.png import to_display
+from tracer.scoring.metrics import psnr, score, ssim
 
 
 @pytest.fixture

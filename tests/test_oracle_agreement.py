@@ -1,6 +1,6 @@
 """The numba kernel against the plain NumPy oracle of tests/reference/oracle.py.
 
-Both implement DESIGN.md's estimator independently, with independent random numbers. Per
+Both implement the estimator of the README, "The optical model", independently, with independent random numbers. Per
 pixel and channel, z = (kernel - oracle) / sqrt(var_kernel + var_oracle) is close to standard
 normal when they agree: we require mean z^2 within the range a chi-square statistic with this
 many degrees of freedom falls in with overwhelming probability (below 2.0; expected 1), no
@@ -15,13 +15,13 @@ from tracer.rendering import render
 from .helpers import blob_scene
 from .reference.oracle import Oracle
 
-CASES = [("hybrid", 2)] + [pytest.param(shading, events, marks=pytest.mark.slow) for shading, events in
-                           [("phase", 1), ("surface", 2), ("hybrid", 3), ("hybrid", 4), ("phase", 2), ("surface", 4)]]
+CASES = [("graded", 2)] + [pytest.param(scattering, events, marks=pytest.mark.slow) for scattering, events in
+                           [("medium", 1), ("interface", 2), ("graded", 3), ("graded", 4), ("medium", 2), ("interface", 4)]]
 
 
-@pytest.mark.parametrize("shading,events", CASES)
-def test_kernel_agrees_with_the_numpy_oracle(shading, events):
-    scene = blob_scene(width=5, height=5, spp=96, shading=shading, events=events)
+@pytest.mark.parametrize("scattering,events", CASES)
+def test_kernel_agrees_with_the_numpy_oracle(scattering, events):
+    scene = blob_scene(width=5, height=5, spp=96, scattering=scattering, events=events)
     frame = render(scene)
     mean, variance, alpha = Oracle(scene).render(96, seed=events)
     z = (frame["radiance"] - mean) / np.sqrt(frame["radiance_variance"] + variance + 1e-30)

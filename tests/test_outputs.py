@@ -1,5 +1,5 @@
-"""Output files: the NPZ and EXR contracts of DESIGN.md (EXR read back through the OpenEXR
-library), PNG encoding against IEC 61966-2-1, merge of sample ranges, contact sheets."""
+"""Output files: the NPZ and EXR contracts of the README, "What a render writes" (EXR read back through the
+OpenEXR library), PNG encoding against IEC 61966-2-1, pooling of sample ranges, contact sheets."""
 
 import json
 
@@ -7,23 +7,23 @@ import numpy as np
 import OpenEXR
 import pytest
 
-from tracer.accumulate import merge_frames
-from tracer.buffers import buffer_specs
+from tracer.rendering.accumulate import merge_frames
+from tracer.rendering.buffers import buffer_specs
 from tracer.errors import UserError
-from tracer.io.exr import read_exr, write_exr
-from tracer.io.npz import read_npz, write_npz
-from tracer.io.png import srgb_encode
-from tracer.outputs import save_frame
+from tracer.outputs.exr import read_exr, write_exr
+from tracer.outputs.npz import read_npz, write_npz
+from tracer.outputs.png import srgb_encode
+from tracer.outputs.save import save_frame
 from tracer.rendering import render
 
 from .helpers import blob_scene
 
-DESIGN_EXR_CHANNELS = (
+CONTRACT_EXR_CHANNELS = (
     ["R", "G", "B", "A"] + [f"variance.{c}" for c in "RGB"] + [f"albedo.{c}" for c in "RGB"]
     + [f"{e}.{layer}.{a}" for e in ("event1", "event2") for layer in ("position", "normal") for a in "XYZ"]
     + [f"{e}.depth.Z" for e in ("event1", "event2")] + [f"{e}.hit.Y" for e in ("event1", "event2")]
 )
-DESIGN_NPZ_KEYS = ["radiance", "radiance_variance", "alpha", "albedo", "event1_position", "event2_position",
+CONTRACT_NPZ_KEYS = ["radiance", "radiance_variance", "alpha", "albedo", "event1_position", "event2_position",
                    "event1_normal", "event2_normal", "event1_depth", "event2_depth", "event1_hit", "event2_hit"]
 
 
@@ -36,14 +36,14 @@ def test_npz_holds_every_key_of_the_contract(frame, tmp_path):
     path = write_npz(tmp_path / "a.npz", frame)
     with np.load(path, allow_pickle=False) as archive:
         keys = set(archive.files)
-        for key in DESIGN_NPZ_KEYS:
+        for key in CONTRACT_NPZ_KEYS:
             array = archive[key]
             assert array.dtype == np.float32
             assert array.shape[:2] == (10, 12)
             assert array.shape[2:] in ((), (3,))
         meta = json.loads(str(archive["meta"]))
-    assert set(DESIGN_NPZ_KEYS) <= keys and {"level1_position", "level1_hit"} <= keys
-    for field in ["version", "scene", "spp", "seed", "sample_offset", "width", "height", "render_seconds",
+    assert set(CONTRACT_NPZ_KEYS) <= keys and {"level1_position", "level1_hit"} <= keys
+    for field in ["version", "scene", "spp", "seed", "first_sample", "width", "height", "render_seconds",
                   "events", "step_mm"]:
         assert field in meta
     assert meta["spp"] == 8 and meta["width"] == 12 and meta["height"] == 10
@@ -58,7 +58,7 @@ def test_exr_reads_back_through_openexr_with_every_layer(frame, tmp_path):
         channels = handle.channels()
         header = handle.header()
         names = set(channels)
-        for name in DESIGN_EXR_CHANNELS + ["level1.position.X", "level1.hit.Y"]:
+        for name in CONTRACT_EXR_CHANNELS + ["level1.position.X", "level1.hit.Y"]:
             assert name in names, name
             assert channels[name].pixels.dtype == np.float32
         np.testing.assert_array_equal(channels["R"].pixels, frame["radiance"][..., 0])
@@ -83,23 +83,23 @@ def test_srgb_curve_matches_iec_61966_2_1():
 def test_merge_of_disjoint_ranges_equals_one_render():
     scene = blob_scene(width=10, height=8, spp=12)
     whole = render(scene)
-    parts = [render(scene, spp=5), render(scene, spp=4, sample_offset=5), render(scene, spp=3, sample_offset=9)]
+    parts = [render(scene, spp=5), render(scene, spp=4, first_sample=5), render(scene, spp=3, first_sample=9)]
     merged = merge_frames(parts)
-    assert merged.spp == 12 and merged.meta["sample_offset"] == 0
+    assert merged.spp == 12 and merged.meta["first_sample"] == 0
     for key in whole.buffers:
         np.testing.assert_allclose(merged[key], whole[key], rtol=2e-5, atol=2e-7, err_msg=key)
 
 
 def test_merge_refuses_overlap_other_seed_and_other_scene():
     scene = blob_scene(width=4, height=4, spp=4)
-    a, b = render(scene), render(scene, sample_offset=2)
+    a, b = render(scene), render(scene, first_sample=2)
     with pytest.raises(UserError, match="overlap"):
         merge_frames([a, b])
     with pytest.raises(UserError, match="seed"):
-        merge_frames([a, render(scene, seed=9, sample_offset=4)])
+        merge_frames([a, render(scene, seed=9, first_sample=4)])
     other = blob_scene(width=4, height=4, spp=4, phase_g=0.1)
     with pytest.raises(UserError, match="scene differs"):
-        merge_frames([a, render(other, sample_offset=4)])
+        merge_frames([a, render(other, first_sample=4)])
 
 
 def test_save_frame_writes_the_asked_formats_and_a_sheet(frame, tmp_path):

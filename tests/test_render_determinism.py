@@ -9,7 +9,7 @@ import time
 import numpy as np
 import pytest
 
-from tracer.io.npz import read_npz
+from tracer.outputs.npz import read_npz
 from tracer.rendering import render
 
 from .helpers import blob_scene, example_scene

@@ -6,11 +6,11 @@ import math
 import numpy as np
 import pytest
 
-from tracer.camera import Camera
+from tracer.scene.camera import Camera
 from tracer.rendering import render
 from tracer.scene import Environment, RenderSettings, Scene
-from tracer.transfer import TransferFunction
-from tracer.volume import Volume
+from tracer.optics.transfer import TransferFunction
+from tracer.volumes import Volume
 
 from .helpers import blob_scene, homogeneous_box_scene
 
@@ -83,7 +83,7 @@ def ball_scene(width=48, height=48, spp=16, radius=8.0):
     tf = TransferFunction(np.array([0.0, radius - 0.05, radius + 0.05, 30.0]), np.array([1.0, 1.0, 0.0, 0.0]),
                           np.array([0.0]), np.array([[0.8, 0.8, 0.8]]))
     camera = Camera(position=(9.0, -38.0, 14.0), target=(0.0, 0.0, 0.0), fov_deg=30.0, width=width, height=height)
-    settings = RenderSettings(spp=spp, step_mm=0.1, events=2, shading="surface")
+    settings = RenderSettings(spp=spp, step_mm=0.1, events=2, scattering="interface")
     return Scene(volume, tf, camera, (), Environment(kind="constant", colors=((1.0, 1.0, 1.0),) * 3), settings)
 
 

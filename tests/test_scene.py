@@ -7,7 +7,7 @@ import pytest
 
 from tracer._kernels.integrate import environment_radiance
 from tracer.errors import UserError
-from tracer.io.exr import write_image_exr
+from tracer.outputs.exr import write_image_exr
 from tracer.rendering import render
 from tracer.scene import ViewWarning, load_scene
 
@@ -62,7 +62,7 @@ def test_examples_load_and_render(root, name):
 def test_overrides_and_defaults(root, tmp_path):
     scene = load_scene(scene_file(tmp_path, root))
     assert scene.settings.step_mm == pytest.approx(0.25)         # half the smallest spacing by default
-    assert scene.settings.events == 2 and scene.settings.shading == "hybrid"
+    assert scene.settings.events == 2 and scene.settings.scattering == "graded"
     changed = scene.with_overrides(spp=7, seed=3, width=20, height=10)
     assert (changed.settings.spp, changed.settings.seed, changed.camera.width, changed.camera.height) == (7, 3, 20, 10)
     with pytest.raises(UserError, match="--spp"):
@@ -81,7 +81,7 @@ BAD_SCENES = {
     "spp not a number": (dict(replace={"spp = 2": 'spp = "many"'}), "render.spp: expected a number"),
     "negative step": (dict(extra_render="step_mm = -0.5"), "render.step_mm: must be > 0.0"),
     "five events": (dict(extra_render="events = 5"), "render.events: must be <= 4"),
-    "shading unknown": (dict(extra_render='shading = "toon"'), "render.shading: must be one of"),
+    "scattering unknown": (dict(extra_render='scattering = "toon"'), "render.scattering: must be one of"),
     "phase_g of one": (dict(extra_render="phase_g = 1.0"), "render.phase_g: must be <= 0.99"),
     "levels decreasing": (dict(extra_render="feature_levels = [0.7, 0.3]"), "levels must increase"),
     "level of one": (dict(extra_render="feature_levels = [1.0]"), "strictly between 0 and 1"),
@@ -128,7 +128,7 @@ def test_view_that_misses_the_volume_warns(root, tmp_path):
 
 
 def test_environment_image_follows_the_lat_long_convention(tmp_path, root):
-    """Row 0 is +z; the left edge is azimuth 0 (+x); azimuth grows toward +y (DESIGN.md)."""
+    """Row 0 is +z; the left edge is azimuth 0 (+x); azimuth grows toward +y (README, "Conventions")."""
     height, width = 8, 16
     image = np.zeros((height, width, 3), np.float32)
     rows, cols = np.mgrid[0:height, 0:width]

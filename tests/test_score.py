@@ -6,13 +6,13 @@ import math
 import numpy as np
 import pytest
 
-from tracer.buffers import Frame
-from tracer.denoise import denoise
+from tracer.rendering.buffers import Frame
+from tracer.scoring.denoise import denoise
 from tracer.errors import UserError
-from tracer.io.npz import write_arrays
-from tracer.metrics import score
+from tracer.outputs.npz import write_arrays
+from tracer.scoring.metrics import score
 from tracer.rendering import render
-from tracer.score import equal_quality_spp, score_files
+from tracer.scoring.score import equal_quality_spp, score_files
 
 from .helpers import blob_scene
 

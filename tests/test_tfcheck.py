@@ -5,9 +5,9 @@ import math
 import numpy as np
 import pytest
 
-from tracer.tfcheck import check_transfer_function, plot_transfer_check
-from tracer.transfer import TransferFunction
-from tracer.volume import Volume
+from tracer.optics.check import check_transfer_function, plot_transfer_check
+from tracer.optics.transfer import TransferFunction
+from tracer.volumes import Volume
 
 
 def constant(value_points, opacity_points):

@@ -8,7 +8,7 @@ import pytest
 
 from tracer._kernels.sampling import albedo_at, extinction_at
 from tracer.errors import UserError
-from tracer.transfer import TransferFunction, load_transfer_function, opacity_to_extinction
+from tracer.optics.transfer import TransferFunction, load_transfer_function, opacity_to_extinction
 
 
 @pytest.mark.parametrize("opacity", [0.01, 0.2, 0.5, 0.9, 0.999])

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from tracer.errors import UserError
-from tracer.volume import load_volume, summarize
+from tracer.volumes import load_volume, summarize
 
 
 def write(path, data, header=None, **options):

@@ -6,15 +6,15 @@ Renders of medical scans made with this tool are for research and teaching, not 
 __version__ = "0.1.0"
 
 from .errors import UserError  # noqa: E402
-from .volume import Volume, load_volume  # noqa: E402
-from .transfer import TransferFunction, load_transfer_function  # noqa: E402
+from .volumes import Volume, load_volume  # noqa: E402
+from .optics.transfer import TransferFunction, load_transfer_function  # noqa: E402
 from .scene import Scene, load_scene  # noqa: E402
-from .buffers import Frame  # noqa: E402
+from .rendering.buffers import Frame  # noqa: E402
 
 
 def render(scene, **options):
-    """Render a :class:`Scene` (or a scene file path); see :func:`tracer.rendering.render`."""
-    from .rendering import render as _render
+    """Render a :class:`Scene` (or a scene file path); see :func:`tracer.rendering.passes.render`."""
+    from .rendering.passes import render as _render
 
     if not isinstance(scene, Scene):
         scene = load_scene(scene)
@@ -22,8 +22,9 @@ def render(scene, **options):
 
 
 def merge(frames):
-    """Merge renders with disjoint sample ranges; see :func:`tracer.accumulate.merge_frames`."""
-    from .accumulate import merge_frames
+    """Pool renders with disjoint sample ranges into the render of their union; see
+    :func:`tracer.rendering.accumulate.merge_frames`."""
+    from .rendering.accumulate import merge_frames
 
     return merge_frames(list(frames))
 

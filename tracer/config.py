@@ -38,15 +38,21 @@ def num_threads(n: int | None):
     """Run the body with ``n`` numba threads, then restore the previous count.
 
     ``numba.set_num_threads`` is thread-local, so this affects only the calling thread.
-    ``None`` leaves the count unchanged.
+    ``None`` leaves the count unchanged. A count below 1 or above the cores numba sees
+    (``NUMBA_NUM_THREADS``) is refused with a :class:`tracer.UserError`.
     """
     import numba
 
     if n is None:
         yield
         return
+    most = numba.config.NUMBA_NUM_THREADS
+    if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= most:
+        from .errors import UserError
+
+        raise UserError(f"threads: must be a whole number from 1 to {most} (the cores numba sees), got {n!r}; "
+                        "leave it out to use them all")
     previous = numba.get_num_threads()
-    n = max(1, min(int(n), numba.config.NUMBA_NUM_THREADS))
     numba.set_num_threads(n)
     try:
         yield

@@ -4,7 +4,7 @@ import json
 
 import numpy as np
 
-from tracer.io.npz import read_npz
+from tracer.outputs.npz import read_npz
 
 from ..helpers import example_scene
 
@@ -26,7 +26,7 @@ def test_render_writes_every_format_and_the_sheet(tmp_path, root):
     assert frame["radiance"].shape == (20, 24, 3)
     assert frame.meta["spp"] == 2 and frame.meta["seed"] == 5 and frame.meta["stopped"] == "spp"
     assert "2 spp in" in result.stdout
-    assert "not diagnosis" in result.stdout          # the figurine uses a Hounsfield-scale preset
+    assert "not diagnosis" not in result.stdout      # an industrial CT of a clay figurine is not a medical scan
 
 
 def test_render_with_target_error_reports_the_spp_reached(tmp_path, root):
@@ -45,14 +45,14 @@ def test_render_sample_ranges_merge_into_the_whole(tmp_path, root):
     common = ["--width", 10, "--height", 10, "--out", out]
     assert invoke("render", scene, "--spp", 6, "--name", "whole", *common).exit_code == 0
     assert invoke("render", scene, "--spp", 4, "--name", "a", *common).exit_code == 0
-    assert invoke("render", scene, "--spp", 2, "--sample-offset", 4, "--name", "b", *common).exit_code == 0
-    result = invoke("merge", out / "a.npz", out / "b.npz", "--out", out / "merged")
+    assert invoke("render", scene, "--spp", 2, "--first-sample", 4, "--name", "b", *common).exit_code == 0
+    result = invoke("pool", out / "a.npz", out / "b.npz", "--out", out / "merged")
     assert result.exit_code == 0, result.output
     merged, whole = read_npz(out / "merged.npz"), read_npz(out / "whole.npz")
     assert merged.spp == 6
     for key in whole.buffers:
         np.testing.assert_allclose(merged[key], whole[key], rtol=2e-5, atol=2e-7, err_msg=key)
-    overlapping = invoke("merge", out / "a.npz", out / "whole.npz", "--out", out / "bad")
+    overlapping = invoke("pool", out / "a.npz", out / "whole.npz", "--out", out / "bad")
     assert_user_error(overlapping, "overlap")
     assert not (out / "bad.npz").exists()
 

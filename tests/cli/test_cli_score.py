@@ -6,7 +6,7 @@ import json
 from tests.dataset.plans import write_plan
 from tracer.dataset.manifest import read_manifest
 from tracer.dataset.run import build_dataset
-from tracer.io.npz import read_npz
+from tracer.outputs.npz import read_npz
 
 from .cli_helpers import assert_user_error, invoke
 from .test_cli_render import small_scene

@@ -13,9 +13,10 @@ import pytest
 
 from tracer.dataset.manifest import read_manifest, record_is_intact
 from tracer.dataset.plan import load_plan
-from tracer.dataset.run import build_dataset, item_scene
+from tracer.dataset.items import item_scene
+from tracer.dataset.run import build_dataset
 from tracer.errors import UserError
-from tracer.io.npz import read_npz
+from tracer.outputs.npz import read_npz
 from tracer.rendering import render
 
 from .plans import write_plan
@@ -96,7 +97,7 @@ def test_input_noise_is_independent_of_the_reference_noise(tmp_path):
     input_error = (load("spp0008.npz") - third).ravel()
     reference_error = (load("reference.npz") - third).ravel()
     assert abs(np.corrcoef(input_error, reference_error)[0, 1]) < 0.05
-    shared = render(scene, spp=8, sample_offset=0)["radiance"] - third           # same indices as the reference
+    shared = render(scene, spp=8, first_sample=0)["radiance"] - third           # same indices as the reference
     assert np.corrcoef(shared.ravel(), reference_error)[0, 1] > 0.3
 
 

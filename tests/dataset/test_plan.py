@@ -61,7 +61,7 @@ def test_fibonacci_views_cover_the_sphere_evenly(tmp_path):
 
 
 def test_transfer_function_jitter_is_bounded(tmp_path):
-    from tracer.transfer import load_transfer_function
+    from tracer.optics.transfer import load_transfer_function
 
     plan = load_plan(write_plan(tmp_path, views=3, variants=3))
     base = load_transfer_function(plan.volumes[0].transfer_functions[0])

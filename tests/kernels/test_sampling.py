@@ -46,7 +46,7 @@ def _gradients(bricks, shape):
 
 def test_gradient_at_voxel_centres_equals_numpy_gradient(rng):
     """numpy.gradient: central differences inside, first-order one-sided differences at the edges."""
-    from tracer.volume import Volume
+    from tracer.volumes import Volume
 
     for shape in [(6, 8, 5), (11, 19, 10)]:         # the second spans several bricks
         field = rng.normal(size=shape).astype(np.float32)
@@ -143,7 +143,7 @@ def _sample_bricked(bricks, shape, points):
 def test_bricked_layout_samples_the_same_values(rng):
     """The bricked copy of the field gives the very same trilinear values (same arithmetic, same order)
     as the plain array, including points on brick faces and at the far edges."""
-    from tracer.volume import Volume
+    from tracer.volumes import Volume
 
     for shape in [(9, 17, 12), (20, 8, 33)]:
         volume = Volume(rng.normal(size=shape).astype(np.float32))

@@ -1,11 +1,11 @@
-"""A slow, plain NumPy implementation of the renderer's estimator, written from DESIGN.md.
+"""A slow, plain NumPy implementation of the renderer's estimator, written from the README.
 
 It shares no code with the numba kernels: its own random numbers (``numpy.random.Generator``),
 its own interpolation (``scipy.ndimage.map_coordinates``-free but written out per axis), the
 transfer function evaluated exactly (not through the baked table), and vectors as NumPy arrays.
 Use it on tiny scenes only: a few thousand paths take seconds.
 
-Estimator (DESIGN.md, "The optical model"): K stratified opacity thresholds per path; ray
+Estimator (README, "The optical model"): K stratified opacity thresholds per path; ray
 marched with a random offset, extinction piecewise constant at each step's midpoint; event k
 where 1 - T first exceeds u_k; at an event, albedo x (direct light x shadow transmittance x
 lobe + environment along one lobe-sampled direction x transmittance); a stratum without an
@@ -18,7 +18,7 @@ import math
 
 import numpy as np
 
-SHADING = {"phase": 0, "surface": 1, "hybrid": 2}
+SCATTERING = {"medium": 0, "interface": 1, "graded": 2}
 
 
 class Oracle:
@@ -33,7 +33,7 @@ class Oracle:
         self.tf = scene.transfer_function
         self.settings = scene.settings
         low, high = volume.value_range
-        self.gradient_scale = float(np.mean(volume.spacing)) / (max(high - low, 1e-12) * self.settings.surface_gradient)
+        self.gradient_scale = float(np.mean(volume.spacing)) / (max(high - low, 1e-12) * self.settings.interface_gradient)
 
     # --- field -------------------------------------------------------------------
     def value(self, index):
@@ -141,8 +141,9 @@ class Oracle:
         n = -gradient / magnitude if magnitude > 0 else -d
         if n @ d > 0:
             n = -n
-        shading = self.settings.shading
-        weight = 0.0 if shading == "phase" else 1.0 if shading == "surface" else 1 - math.exp(-magnitude * self.gradient_scale)
+        scattering = self.settings.scattering
+        weight = (0.0 if scattering == "medium" else 1.0 if scattering == "interface"
+                  else 1 - math.exp(-magnitude * self.gradient_scale))
         g = self.settings.phase_g
 
         def lobe(w):

@@ -25,9 +25,9 @@ from .sampling import (INV_PI, albedo_at, extinction_at, gradient_bricked, henye
                        sample_henyey_greenstein, table_position, trilinear_bricked)
 
 # integer codes (strings never reach compiled code)
-SHADING_PHASE = 0
-SHADING_SURFACE = 1
-SHADING_HYBRID = 2
+SCATTER_MEDIUM = 0
+SCATTER_INTERFACE = 1
+SCATTER_GRADED = 2
 ENV_CONSTANT = 0
 ENV_SKY = 1
 ENV_IMAGE = 2
@@ -290,11 +290,11 @@ def event_frame(bricks, shape, world_to_index, gradient_to_world, px, py, pz, dx
 
 
 @njit(**JIT)
-def surface_weight(shading, gradient_scale, magnitude):
-    """Weight of the surface lobe: 0 for phase, 1 for surface, ``1 - exp(-|grad| * scale)`` for hybrid."""
-    if shading == SHADING_PHASE:
+def interface_weight(scattering, gradient_scale, magnitude):
+    """Weight of the interface (Lambert) lobe: 0 for medium, 1 for interface, ``1 - exp(-|grad| * scale)`` for graded."""
+    if scattering == SCATTER_MEDIUM:
         return 0.0
-    if shading == SHADING_SURFACE:
+    if scattering == SCATTER_INTERFACE:
         return 1.0
     return 1.0 - math.exp(-magnitude * gradient_scale)
 
@@ -365,7 +365,7 @@ def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, li
 
 @njit(**JIT)
 def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-               background_is_env, shading, n_events, levels, step, g, gradient_scale, seed, row, col, width, height,
+               background_is_env, scattering, n_events, levels, step, g, gradient_scale, seed, row, col, width, height,
                sample, skip, acc, counts, scratch):
     """One sample path of pixel (row, col); adds its contribution to ``acc[row, col]``.
 
@@ -464,7 +464,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
         counts[row, 0] += 7
         counts[row, 1] += 7
         a0, a1, a2 = albedo_at(albedo, lookup, value)
-        weight = surface_weight(shading, gradient_scale, magnitude)
+        weight = interface_weight(scattering, gradient_scale, magnitude)
         s0, s1, s2 = scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors,
                                      env_image, step, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz,
                                      seed, pixel, sample, DIM_EVENT + DIM_EVENT_STRIDE * k, skip, counts, row)
@@ -531,7 +531,7 @@ def row_stride(n_rows):
 
 @njit(**JIT_PARALLEL)
 def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-                background_is_env, shading, n_events, levels, step, g, gradient_scale, seed, row_start, row_end,
+                background_is_env, scattering, n_events, levels, step, g, gradient_scale, seed, row_start, row_end,
                 sample_start, sample_end, skip, acc, counts, done):
     """Add samples [sample_start, sample_end) of rows [row_start, row_end) to ``acc``.
 
@@ -569,6 +569,6 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
         for col in range(width):
             for sample in range(sample_start, sample_end):
                 trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-                           background_is_env, shading, n_events, levels, step, g, gradient_scale, seed,
+                           background_is_env, scattering, n_events, levels, step, g, gradient_scale, seed,
                            row, col, width, height, sample, skip, acc, counts, scratch)
     done[0] = row_end

@@ -1,9 +1,10 @@
-"""What every command shares: one-line user errors with exit status 2, warnings, consoles."""
+"""What every command shares: one-line user errors with exit status 2, warnings, consoles, the medical note."""
 
 from __future__ import annotations
 
 import functools
 import warnings
+from typing import Annotated, Optional
 
 import typer
 from rich.console import Console
@@ -14,6 +15,10 @@ MEDICAL_CAUTION = ("Renders of medical scans are for research and teaching, not 
 
 console = Console(soft_wrap=True)
 error_console = Console(stderr=True, highlight=False, soft_wrap=True)
+
+#: ``--threads`` as every command that runs kernels takes it.
+threads_option = Annotated[Optional[int], typer.Option(
+    help="numba threads, from 1 to the number of cores (default: all cores); results do not depend on it.")]
 
 
 def reports_user_errors(function):
@@ -41,3 +46,34 @@ def _show_warnings(caught) -> None:
     for item in caught:
         if issubclass(item.category, UserWarning):
             error_console.print(f"[yellow]warning:[/yellow] {escape(str(item.message))}", soft_wrap=True)
+
+
+def medical_note(scene=None, *, volume=None, transfer_function=None) -> None:
+    """Print the medical caution when what is rendered or checked is a medical scan: a transfer function
+    marked ``medical = true``, or a volume whose header names a patient space (README, "Conventions")."""
+    if scene is not None:
+        volume, transfer_function = scene.volume, scene.transfer_function
+    medical = (volume is not None and volume.patient_space) or (transfer_function is not None and transfer_function.medical)
+    if medical:
+        console.print(f"[dim]{MEDICAL_CAUTION}[/dim]")
+
+
+def former_option(name: str, value, new_name: str) -> None:
+    """Refuse an option of an earlier release with a line that names its replacement."""
+    if value is not None:
+        from ..errors import UserError
+
+        raise UserError(f"{name} is now called {new_name} (same meaning)")
+
+
+def former_command(old: str, new: str):
+    """A hidden command under an earlier release's name that says what it is called now."""
+
+    @reports_user_errors
+    def command(arguments: Annotated[Optional[list[str]], typer.Argument(hidden=True)] = None):
+        from ..errors import UserError
+
+        raise UserError(f"`tracer {old}` is now called `tracer {new}` (same arguments and options)")
+
+    command.__doc__ = f"Now `tracer {new}`."
+    return command

@@ -36,7 +36,7 @@ def dataset(
     from ..dataset.plan import load_plan
     from ..dataset.run import build_dataset
     from ..errors import UserError
-    from ..outputs import check_output_folder
+    from ..outputs.save import check_output_folder
 
     if workers is not None and scheduler is not None:
         raise UserError("--workers and --scheduler: give one or the other")

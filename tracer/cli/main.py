@@ -26,7 +26,7 @@ volumes.register(app)
 rendering.register(app)
 datasets.register(app)
 scoring.register(app)
-volumes.register_samples(app)
+volumes.register_demo_volumes(app)
 
 
 def _ensure_numba_cache() -> None:

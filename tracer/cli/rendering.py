@@ -1,4 +1,4 @@
-"""``render``, ``preview`` and ``merge``."""
+"""``preview``, ``render`` and ``pool``."""
 
 from __future__ import annotations
 
@@ -7,13 +7,17 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import MEDICAL_CAUTION, console, error_console, reports_user_errors
+from rich.markup import escape
+
+from .common import (console, error_console, former_command, former_option, medical_note, reports_user_errors,
+                     threads_option)
 
 
 def register(app: typer.Typer) -> None:
-    app.command("render")(render)
     app.command("preview")(preview)
-    app.command("merge")(merge)
+    app.command("render")(render)
+    app.command("pool")(pool)
+    app.command("merge", hidden=True)(former_command("merge", "pool"))
 
 
 @reports_user_errors
@@ -21,7 +25,7 @@ def render(
     scene: Annotated[Path, typer.Argument(help="Scene TOML file.")],
     spp: Annotated[Optional[int], typer.Option(help="Samples per pixel (the cap when --target-error is given).")] = None,
     seed: Annotated[Optional[int], typer.Option(help="Seed of the counter-based generator.")] = None,
-    sample_offset: Annotated[int, typer.Option(help="First sample index; disjoint ranges of one seed merge exactly.")] = 0,
+    first_sample: Annotated[int, typer.Option(min=0, help="Index of the first sample; renders of one seed over disjoint ranges pool exactly (`tracer pool`).")] = 0,
     out: Annotated[Path, typer.Option("--out", help="Output folder.")] = Path("renders"),
     name: Annotated[Optional[str], typer.Option(help="Base name of the files (default: the scene's file name).")] = None,
     format: Annotated[str, typer.Option("--format", help="Comma-separated: npz (always written), exr, png.")] = "npz,png",
@@ -33,7 +37,8 @@ def render(
     resume: Annotated[bool, typer.Option("--resume", help="Continue from the checkpoint in --out (bit-exact).")] = False,
     sheet: Annotated[bool, typer.Option("--sheet", help="Also write NAME.sheet.png with every buffer, labelled.")] = False,
     exposure: Annotated[float, typer.Option(help="Exposure in stops for the PNG preview and sheet.")] = 0.0,
-    threads: Annotated[Optional[int], typer.Option(help="numba threads (results do not depend on it).")] = None,
+    threads: threads_option = None,
+    sample_offset: Annotated[Optional[int], typer.Option("--sample-offset", hidden=True)] = None,
 ):
     """Path-trace a scene and write its buffers (NPZ always; EXR and PNG as asked).
 
@@ -41,10 +46,12 @@ def render(
     """
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
-    from ..outputs import check_output_folder, parse_formats, save_frame
-    from ..rendering import render as render_scene
+    from ..outputs.save import check_output_folder, parse_formats, save_frame
+    from ..rendering.passes import describe_stop
+    from ..rendering.passes import render as render_scene
     from ..scene import load_scene
 
+    former_option("--sample-offset", sample_offset, "--first-sample")
     formats = parse_formats(format)
     loaded = load_scene(scene).with_overrides(spp=spp, seed=seed, width=width, height=height)
     name = name or scene.stem
@@ -66,8 +73,8 @@ def render(
     columns = [TextColumn("[bold]{task.description}"), BarColumn(), TextColumn("{task.fields[status]}"),
                TimeElapsedColumn(), TextColumn("eta"), TimeRemainingColumn()]
     with Progress(*columns, console=error_console, transient=True) as progress:
-        task = progress.add_task(f"{name} {cam.width}x{cam.height}", total=None if target_error else total,
-                                 status="compiling / loading kernels")
+        task = progress.add_task(escape(f"{name} {cam.width}x{cam.height}"), total=None if target_error else total,
+                                 status="compiling kernels (first run only)")
 
         def report(state):
             seconds = max(state.elapsed_seconds, 1e-9)
@@ -76,23 +83,24 @@ def render(
                 status += f", rel. error {state.relative_error:.4f}"
             progress.update(task, completed=state.spp_done, status=status)
 
-        frame = render_scene(loaded, sample_offset=sample_offset, target_error=target_error, time_limit=time_limit,
+        frame = render_scene(loaded, spp=spp, first_sample=first_sample, target_error=target_error, time_limit=time_limit,
                              threads=threads, on_progress=report, checkpoint_path=checkpoint_path,
                              checkpoint_every=checkpoint_every, resume=resume)
         progress.update(task, completed=frame.spp, total=frame.spp if target_error else total)
     paths = save_frame(frame, out, name, formats, exposure, sheet)
-    if loaded.transfer_function.scale == "HU":
-        console.print(f"[dim]{MEDICAL_CAUTION}[/dim]")
+    medical_note(loaded)
     meta = frame.meta
-    line = f"{frame.spp} spp in {meta['render_seconds']:.2f} s ({meta['stopped']})"
+    if meta["compile_seconds"] >= 0.05:
+        console.print(f"compiled kernels in {meta['compile_seconds']:.1f} s (first run only; not in the render time)")
+    line = f"{describe_stop(meta)} in {meta['render_seconds']:.2f} s"
     if "relative_error" in meta:
         line += f", mean relative error {meta['relative_error']:.4f}"
     console.print(line)
     for path in paths:
-        console.print(f"  wrote {path}")
+        console.print(f"  wrote {escape(str(path))}")
     if meta["stopped"] == "interrupted":
         error_console.print(f"[yellow]interrupted:[/yellow] wrote the {frame.spp} spp done; "
-                            f"continue with --resume (checkpoint {checkpoint})")
+                            f"continue with --resume (checkpoint {escape(str(checkpoint))})")
         raise typer.Exit(code=130)
 
 
@@ -103,15 +111,17 @@ def preview(
     out: Annotated[Path, typer.Option("--out", help="Output folder.")] = Path("renders"),
     name: Annotated[Optional[str], typer.Option(help="Base name (default: SCENE.preview).")] = None,
     exposure: Annotated[float, typer.Option(help="Exposure in stops for the PNG.")] = 0.0,
-    threads: Annotated[Optional[int], typer.Option(help="numba threads.")] = None,
+    width: Annotated[Optional[int], typer.Option(help="Width of the full render the preview stands for (the preview is a quarter of it).")] = None,
+    height: Annotated[Optional[int], typer.Option(help="Height of the full render the preview stands for.")] = None,
+    threads: threads_option = None,
 ):
     """A quarter-resolution, few-spp render in seconds, with the predicted time of the full render."""
-    from ..io.png import write_preview
-    from ..outputs import check_output_folder
-    from ..rendering import preview_scene
+    from ..outputs.png import write_preview
+    from ..outputs.save import check_output_folder
+    from ..rendering.preview import preview_scene
     from ..scene import load_scene
 
-    loaded = load_scene(scene)
+    loaded = load_scene(scene).with_overrides(width=width, height=height)
     check_output_folder(out)
     frame, per_spp, predicted = preview_scene(loaded, spp=spp, threads=threads)
     path = write_preview(out / f"{name or scene.stem + '.preview'}.png", frame["radiance"], exposure)
@@ -119,20 +129,25 @@ def preview(
     console.print(f"preview {frame.meta['width']}x{frame.meta['height']} at {spp} spp")
     console.print(f"  cost at full size {cam.width}x{cam.height}: {per_spp:.3f} s per spp")
     console.print(f"  predicted full render at {loaded.settings.spp} spp: {_duration(predicted)}")
-    console.print(f"  wrote {path}")
+    console.print(f"  wrote {escape(str(path))}")
+    medical_note(loaded)
 
 
 @reports_user_errors
-def merge(
+def pool(
     inputs: Annotated[list[Path], typer.Argument(help="Render NPZ files of one scene and seed, disjoint sample ranges.")],
     out: Annotated[Path, typer.Option("--out", help="Output path (NAME or NAME.npz); a PNG preview is written beside it.")],
 ):
-    """Merge renders with disjoint sample ranges into the render of their union."""
-    from ..accumulate import merge_frames
-    from ..io.npz import read_npz, write_npz
-    from ..io.png import write_preview
+    """Pool renders of one scene and seed over disjoint sample ranges into the render of their union.
 
-    from ..outputs import check_output_folder
+    The result equals one render over all those samples (up to float32 rounding of the stored means):
+    render `--first-sample 0 --spp 64` on one machine and `--first-sample 64 --spp 64` on another, then pool.
+    """
+    from ..rendering.accumulate import merge_frames
+    from ..outputs.npz import read_npz, write_npz
+    from ..outputs.png import write_preview
+
+    from ..outputs.save import check_output_folder
 
     check_output_folder(out.parent)
     frames = [read_npz(path) for path in inputs]
@@ -140,8 +155,8 @@ def merge(
     target = out if out.suffix == ".npz" else out.with_name(out.name + ".npz")
     write_npz(target, merged)
     write_preview(target.with_suffix(".png"), merged["radiance"])
-    console.print(f"merged {len(frames)} renders: {merged.spp} spp, samples {merged.meta['merged_from']}")
-    console.print(f"  wrote {target}")
+    console.print(f"pooled {len(frames)} renders: {merged.spp} spp, samples {merged.meta['merged_from']}")
+    console.print(f"  wrote {escape(str(target))}")
 
 
 def _duration(seconds: float) -> str:

@@ -42,7 +42,7 @@ def score(
     import json
 
     from ..io.atomic import atomic_path
-    from ..score import plot_report, read_radiance, score_files
+    from ..scoring.score import plot_report, read_radiance, score_files
 
     report = score_files(reference, candidate, ladder=ladder or (), seconds=seconds, exposure=exposure,
                          covered_only=covered_only)
@@ -85,8 +85,8 @@ def score_dataset(
     from rich.table import Table
 
     from ..io.atomic import atomic_path
-    from ..score import aggregate
-    from ..score import score_dataset as run
+    from ..scoring.score import aggregate
+    from ..scoring.score import score_dataset as run
 
     items = run(folder, predictions, input_spp=input_spp, denoise_seconds=denoise_seconds, exposure=exposure,
                 covered_only=covered_only)
@@ -132,12 +132,12 @@ def denoise(
     The filter of Dammertz et al. (2010) stops at edges of normals, albedo, depth or positions and is
     guided by the variance buffer; --color-only filters with radiance and variance alone.
     """
-    from ..buffers import Frame
-    from ..denoise import DenoiseSettings
-    from ..denoise import denoise as run
-    from ..io.npz import read_npz, write_npz
-    from ..io.png import write_preview
-    from ..outputs import check_output_folder
+    from ..rendering.buffers import Frame
+    from ..scoring.denoise import DenoiseSettings
+    from ..scoring.denoise import denoise as run
+    from ..outputs.npz import read_npz, write_npz
+    from ..outputs.png import write_preview
+    from ..outputs.save import check_output_folder
 
     frame = read_npz(input)
     target = out if out.suffix == ".npz" else out.with_name(out.name + ".npz")

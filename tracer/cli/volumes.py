@@ -1,13 +1,16 @@
-"""``info``, ``tf-check`` and ``samples``: looking at volumes and transfer functions before rendering."""
+"""``info``, ``tf-check`` and ``demo-volumes``: looking at volumes and transfer functions before rendering."""
 
 from __future__ import annotations
 
 from pathlib import Path
 from typing import Annotated, Optional
 
+import numpy as np
 import typer
 
-from .common import MEDICAL_CAUTION, console, error_console, reports_user_errors
+from rich.markup import escape
+
+from .common import console, error_console, former_command, medical_note, reports_user_errors
 
 
 def register(app: typer.Typer) -> None:
@@ -15,23 +18,33 @@ def register(app: typer.Typer) -> None:
     app.command("tf-check")(tf_check)
 
 
-def register_samples(app: typer.Typer) -> None:
-    app.command("samples")(samples)
+def register_demo_volumes(app: typer.Typer) -> None:
+    app.command("demo-volumes")(demo_volumes)
+    app.command("samples", hidden=True)(former_command("samples", "demo-volumes"))
 
 
 @reports_user_errors
 def info(
     volume: Annotated[Path, typer.Argument(help="Volume file: .nrrd, .nhdr or .npy.")],
     spacing_mm: Annotated[Optional[str], typer.Option(help="For .npy: voxel spacing 'sx,sy,sz' in mm.")] = None,
+    axes: Annotated[Optional[Path], typer.Option("--axes", help="Write an orientation check here (PNG): three small "
+                    "renders (the default camera, from +x, from above) with the world axes drawn and labelled.")] = None,
+    transfer_function: Annotated[Optional[Path], typer.Option("--tf", help="Transfer function for the --axes "
+                                 "renders (default: one made from the value percentiles).")] = None,
 ):
-    """Describe a volume: shape, dtype, spacing, extent, value range, percentiles, histogram, memory, NaN/Inf."""
-    from ..volume import load_volume, summarize
+    """Describe a volume: shape, dtype, spacing, extent, value range, percentiles, histogram, memory, NaN/Inf,
+    where each axis points (anatomically too, when the header names a patient space), and what the default
+    camera sees.
+    """
+    from ..scene.camera import default_view
+    from ..volumes import load_volume, summarize
+    from ..volumes.orientation import anatomical_names, axis_directions, toward
 
     spacing = _triple(spacing_mm, "--spacing-mm") if spacing_mm else None
     loaded = load_volume(volume, spacing_mm=spacing, allow_nonfinite=True)
     summary = summarize(loaded)
     out = console.print
-    out(f"[bold]{volume}[/bold]")
+    out(f"[bold]{escape(str(volume))}[/bold]")
     out(f"  shape        {' x '.join(map(str, summary.shape))} voxels  \\[x, y, z]")
     out(f"  dtype        {summary.dtype} (rendered as float32)")
     out(f"  spacing      {' x '.join(f'{s:.4g}' for s in summary.spacing_mm)} mm")
@@ -49,6 +62,30 @@ def info(
     for count, low, high in zip(counts, edges[:-1], edges[1:]):
         bar = "#" * int(round(40 * math.log10(count + 1) / peak)) if count else ""
         out(f"    {low:>11.5g} .. {high:<11.5g} {count:>10d} {bar}", highlight=False)
+    space = loaded.space or "none named"
+    names = anatomical_names(loaded.space)
+    out(f"  space        {escape(space)}" + (f" (world +x {names[0]}, +y {names[1]}, +z {names[2]})" if names else
+                                             " (world axes without anatomical names)" if loaded.space else ""))
+    out("  axes         index axis: world step per voxel (mm) -> points toward")
+    for axis in axis_directions(loaded):
+        step = ", ".join(f"{v:.4g}" for v in axis.step_mm)
+        out(f"    {'ijk'[axis.axis]} ({'xyz'[axis.axis]} in the array)  ({step})  -> {axis.toward}", highlight=False)
+    view = default_view(loaded)
+    out(f"  default view camera at ({', '.join(f'{v:.4g}' for v in view.position)}) mm, looking "
+        f"{toward(view.forward, loaded.space)}, up {toward(view.up, loaded.space)}; it sees the side of the "
+        f"volume that faces {toward(-np.asarray(view.forward), loaded.space)}", highlight=False)
+    if axes is not None:
+        from ..optics.transfer import load_transfer_function
+        from ..outputs.orientation import write_axes_check
+
+        tf = load_transfer_function(transfer_function) if transfer_function is not None else None
+        if summary.n_nonfinite:
+            from ..errors import UserError
+
+            raise UserError(f"{volume}: data: {summary.n_nonfinite} voxels are NaN or Inf; --axes cannot render it")
+        path = write_axes_check(loaded, axes, transfer_function=tf)
+        out(f"  wrote {escape(str(path))}")
+    medical_note(volume=loaded)
 
 
 @reports_user_errors
@@ -64,33 +101,32 @@ def tf_check(
     verdict ("nearly invisible", "only the outer shell will show", ...). --out writes a plot of the value
     histogram under the opacity and albedo curves.
     """
-    from ..tfcheck import check_transfer_function, plot_transfer_check
-    from ..transfer import load_transfer_function
-    from ..volume import load_volume
+    from ..optics.check import check_transfer_function, plot_transfer_check
+    from ..optics.transfer import load_transfer_function
+    from ..volumes import load_volume
 
     loaded = load_volume(volume)
     tf = load_transfer_function(transfer_function)
     check = check_transfer_function(loaded, tf)
-    console.print(f"[bold]{transfer_function.name}[/bold] on [bold]{volume.name}[/bold]")
+    console.print(f"[bold]{escape(transfer_function.name)}[/bold] on [bold]{escape(volume.name)}[/bold]")
     for line in check.lines():
-        console.print("  " + line, highlight=False)
+        console.print("  " + escape(line), highlight=False)
     for warning in check.warnings:
-        error_console.print(f"[yellow]warning:[/yellow] {warning}", soft_wrap=True)
-    if tf.scale == "HU":
-        console.print(f"  [dim]{MEDICAL_CAUTION}[/dim]")
+        error_console.print(f"[yellow]warning:[/yellow] {escape(warning)}", soft_wrap=True)
     if out is not None:
         plot_transfer_check(loaded, tf, check, out)
-        console.print(f"  wrote {out}")
+        console.print(f"  wrote {escape(str(out))}")
+    medical_note(volume=loaded, transfer_function=tf)
 
 
 @reports_user_errors
-def samples(
+def demo_volumes(
     out: Annotated[Path, typer.Option("--out", help="Folder to write the demo volumes into.")] = Path("sample_volumes"),
 ):
     """Regenerate the demo volumes (figurine, lattice, plume) bit-identically as gzip NRRD files."""
-    from ..samples import write_samples
+    from ..volumes.demo import write_demo_volumes
 
-    write_samples(out, progress=lambda name, path: console.print(f"  wrote {path}"))
+    write_demo_volumes(out, progress=lambda name, path: console.print(f"  wrote {escape(str(path))}"))
 
 
 def _triple(text: str, option: str) -> tuple[float, float, float]:

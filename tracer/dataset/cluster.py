@@ -13,6 +13,7 @@ import os
 import re
 
 from ..errors import UserError
+from .items import finish_chunked_reference, finish_record, render_item_inputs, render_reference_chunk
 
 _ADDRESS = re.compile(r"^(tcp|tls)://[A-Za-z0-9_.\-]+:\d{1,5}$|^(tcp|tls)://\[[0-9A-Fa-f:]+\]:\d{1,5}$")
 
@@ -76,11 +77,11 @@ def _warm_up() -> bool:
     """Compile (or load from the cache) the render kernel once per worker before items arrive."""
     import numpy as np
 
-    from tracer.camera import Camera
+    from tracer.scene import Camera
     from tracer.rendering import render
     from tracer.scene import Scene
-    from tracer.transfer import TransferFunction
-    from tracer.volume import Volume
+    from tracer.optics import TransferFunction
+    from tracer.volumes import Volume
 
     volume = Volume(np.linspace(0, 1, 27, dtype=np.float32).reshape(3, 3, 3))
     tf = TransferFunction(np.array([0.0, 1.0]), np.array([0.0, 0.5]), np.array([0.0]), np.array([[0.5, 0.5, 0.5]]))
@@ -93,7 +94,6 @@ def run_on_cluster(plan, todo, plan_arguments, out_dir, finished, *, workers, sc
                    numba_threads=None) -> None:
     from distributed import as_completed
 
-    from .run import _finish_record, finish_chunked_reference, render_item_inputs, render_reference_chunk
 
     with client_for(workers, scheduler, dashboard, numba_threads) as client:
         client.run(_warm_up)
@@ -123,5 +123,5 @@ def run_on_cluster(plan, todo, plan_arguments, out_dir, finished, *, workers, sc
                 if chunked:
                     partial["reference"] = finish_chunked_reference(plan, item, state["chunks"], out_dir,
                                                                     partial["files"])
-                finished(_finish_record(plan, item, partial, out_dir))
+                finished(finish_record(plan, item, partial, out_dir))
                 del pending[item.index]

@@ -20,10 +20,11 @@ from pathlib import Path
 import numpy as np
 
 from .._kernels.rng import mix64_numpy, uniform_numpy
-from ..camera import Camera
+from ..scene.camera import Camera
 from ..errors import UserError
-from ..scene import ENVIRONMENTS, Environment, Light, RenderSettings, SHADINGS
-from ..transfer import TransferFunction
+from ..scene import ENVIRONMENTS, Environment, Light, RenderSettings
+from ..scene.parse import parse_scattering
+from ..optics.transfer import TransferFunction
 
 #: Input renders use sample indices from here on, references from 0: never the same indices.
 INPUT_SAMPLE_BASE = 2**40
@@ -240,7 +241,7 @@ def load_plan(path) -> DatasetPlan:
 
 def parse_plan(data: dict, path: Path) -> DatasetPlan:
     from ..io.tomlfile import Table, check_vector
-    from ..scene import _parse_environment
+    from ..scene.parse import _parse_environment
 
     base = path.parent
     top = Table(data, path)
@@ -337,18 +338,17 @@ def parse_plan(data: dict, path: Path) -> DatasetPlan:
         raise render.error("reference_chunks", f"{chunks} chunks for {reference_spp} spp")
     step = render.number("step_mm", None, low=0.0, low_open=True)
     events = render.integer("events", 2, low=1, high=4)
-    shading = render.string("shading", "hybrid", choices=SHADINGS)
+    scattering, interface_gradient = parse_scattering(render)
     phase_g = render.number("phase_g", 0.0, low=-0.99, high=0.99)
     levels = render.raw("feature_levels", [])
     levels = check_vector(levels, render.where("feature_levels"), length=len(levels) if isinstance(levels, list) else -1,
                           low=1e-6, high=1 - 1e-6) if levels else ()
     if len(levels) > 2 or (len(levels) == 2 and levels[1] <= levels[0]):
         raise render.error("feature_levels", f"expected at most 2 increasing levels, got {list(levels)}")
-    surface_gradient = render.number("surface_gradient", 0.15, low=0.0, low_open=True)
     render.finish()
     settings = RenderSettings(spp=reference_spp, seed=0, step_mm=step if step is not None else -1.0, events=events,
-                              shading=shading, phase_g=phase_g, feature_levels=tuple(levels),
-                              surface_gradient=surface_gradient)
+                              scattering=scattering, phase_g=phase_g, feature_levels=tuple(levels),
+                              interface_gradient=interface_gradient)
 
     splits_table = top.table("splits", {})
     splits_table = splits_table if isinstance(splits_table, Table) else Table(splits_table, path, "splits")

@@ -7,8 +7,8 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import UserError
-from ..io.npz import read_npz
-from ..io.png import to_display
+from ..outputs.npz import read_npz
+from ..outputs.png import to_display
 from .manifest import read_manifest
 
 

@@ -1,1 +1,1 @@
-"""File formats: NRRD/NPY in, NPZ/EXR/PNG out, TOML configuration. Arrays and metadata cross this line."""
+"""Helpers every file reader and writer shares: write-then-rename (``atomic.py``) and typed TOML tables with one-line errors (``tomlfile.py``)."""

@@ -63,7 +63,7 @@ class Frame:
     """A finished render: named float32 buffers (H, W) or (H, W, 3), and its metadata.
 
     Index it by buffer key (``frame["radiance"]``). ``meta`` holds the tool version, the scene
-    as parsed, spp, seed, sample_offset, width, height, render_seconds, events and step_mm.
+    as parsed, spp, seed, first_sample, width, height, render_seconds, events and step_mm.
     """
 
     buffers: dict[str, np.ndarray]

@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .buffers import Frame
+from ..rendering.buffers import Frame
 
 
 @dataclass(frozen=True)
@@ -43,8 +43,8 @@ class DenoiseResult:
 
 def denoise(frame: Frame, settings: DenoiseSettings = DenoiseSettings(), threads: int | None = None) -> DenoiseResult:
     """Filter ``frame['radiance']`` guided by its feature buffers; see the module docstring."""
-    from ._kernels.atrous import atrous_pass, feature_spread, spatial_variance
-    from .config import num_threads
+    from .._kernels.atrous import atrous_pass, feature_spread, spatial_variance
+    from ..config import num_threads
 
     start = time.perf_counter()
     radiance = np.ascontiguousarray(frame["radiance"], dtype=np.float32)

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .io.png import to_display
+from ..outputs.png import to_display
 
 SSIM_SIGMA = 1.5
 SSIM_TRUNCATE = 3.5

@@ -11,7 +11,7 @@ The scenario: a small materials lab that scans what passes through it.
 - ``plume``: a soft, semi-transparent density field from a combustion simulation (float32),
   smoke-like, with no sharp surfaces.
 
-``tracer samples --out DIR`` writes them; the same code gives the same bits every time.
+``tracer demo-volumes --out DIR`` writes them; the same code gives the same bits every time.
 """
 
 from __future__ import annotations
@@ -21,7 +21,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ._kernels.rng import mix64_numpy, uniform_numpy
+from .._kernels.rng import mix64_numpy, uniform_numpy
 
 AIR_HU = -1000.0      # fixed point of the Hounsfield scale
 CLAY_HU = 1800.0      # from memory: fired ceramics read roughly 1500-2500 HU
@@ -180,9 +180,9 @@ def generate(name: str) -> Sample:
     return GENERATORS[name]()
 
 
-def write_samples(out_dir, names=None, progress=None) -> list[Path]:
+def write_demo_volumes(out_dir, names=None, progress=None) -> list[Path]:
     """Write the demo volumes as gzip NRRD files into ``out_dir``; returns the paths."""
-    from .io.nrrd import write_nrrd
+    from .nrrd import write_nrrd
 
     out_dir = Path(out_dir)
     paths = []

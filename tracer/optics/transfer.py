@@ -14,7 +14,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from .errors import UserError
+from ..errors import UserError
 
 #: Opacity is capped just below 1 so that extinction stays finite (13.8 per reference length).
 MAX_OPACITY = 1.0 - 1e-6
@@ -49,6 +49,8 @@ class TransferFunction:
         Length over which ``opacity`` is the fraction of light absorbed or scattered.
     name, scale, notes : str
         ``scale`` is ``"HU"`` for presets on the Hounsfield scale, ``"raw"`` otherwise.
+    medical : bool
+        Made for medical scans: renders with it carry the medical caution (README).
     """
 
     opacity_values: np.ndarray
@@ -60,6 +62,7 @@ class TransferFunction:
     scale: str = "raw"
     notes: str = ""
     source: str = field(default="<inline>")
+    medical: bool = False
 
     def opacity_at(self, values) -> np.ndarray:
         """Opacity per reference length at ``values`` (piecewise linear, clamped)."""
@@ -101,6 +104,7 @@ class TransferFunction:
             "name": self.name,
             "reference_length_mm": self.reference_length_mm,
             "scale": self.scale,
+            **({"medical": True} if self.medical else {}),
             "opacity": [[float(v), float(a)] for v, a in zip(self.opacity_values, self.opacity)],
             "color": [[float(v), [float(x) for x in c]] for v, c in zip(self.color_values, self.colors)],
         }
@@ -112,23 +116,31 @@ def opacity_to_extinction(opacity, reference_length_mm: float = 1.0) -> np.ndarr
     return -np.log1p(-opacity) / reference_length_mm
 
 
+#: Presets of an earlier release and what they are called now.
+FORMER_PRESETS = {"ct_bone.toml": "hu_mineral.toml", "ct_soft_tissue.toml": "hu_translucent_tissue.toml"}
+
+
 def load_transfer_function(path) -> TransferFunction:
     """Read and validate a transfer-function TOML file (format in the README)."""
-    from .io.tomlfile import read_toml
+    from ..io.tomlfile import read_toml
 
     path = Path(path)
+    if not path.exists() and path.name in FORMER_PRESETS:
+        raise UserError(f"{path}: file not found; the preset {path.name} is now {FORMER_PRESETS[path.name]} "
+                        "(same folder, new colours)")
     return parse_transfer_function(read_toml(path), path)
 
 
 def parse_transfer_function(data: dict, source="<inline>") -> TransferFunction:
     """Validate a parsed transfer-function table; errors name the file, the key and the entry."""
-    from .io.tomlfile import Table, check_vector
+    from ..io.tomlfile import Table, check_vector
 
     table = Table(data, source)
     name = table.string("name", "unnamed")
     reference = table.number("reference_length_mm", 1.0, low=0.0, low_open=True)
     scale = table.string("scale", "raw", choices=SCALES)
     notes = table.string("notes", "")
+    medical = table.boolean("medical", False)
     opacity_points = table.raw("opacity")
     color_points = table.raw("color")
     table.finish()
@@ -158,5 +170,5 @@ def parse_transfer_function(data: dict, source="<inline>") -> TransferFunction:
     color_values, colors = points("color", color_points, parse_color)
     return TransferFunction(
         opacity_values=opacity_values, opacity=opacity, color_values=color_values, colors=colors.reshape(-1, 3),
-        reference_length_mm=reference, name=name, scale=scale, notes=notes, source=str(source),
+        reference_length_mm=reference, name=name, scale=scale, notes=notes, source=str(source), medical=medical,
     )

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import UserError
+from ..errors import UserError
 
 
 @dataclass(frozen=True)
@@ -85,3 +85,27 @@ class Camera:
         sx = (rel @ (array[2] / np.dot(array[2], array[2]))) / z
         sy = (rel @ (array[3] / np.dot(array[3], array[3]))) / z
         return np.stack([(1.0 - sy) / 2.0 * self.height, (sx + 1.0) / 2.0 * self.width], axis=-1)
+
+
+#: Where the default camera sits, in bounding radii from the volume's centre: in front (world -y)
+#: and above (world +z), looking at the centre with +z up (README, "Conventions").
+DEFAULT_OFFSET = (0.0, -3.2, 1.2)
+
+
+@dataclass(frozen=True)
+class DefaultView:
+    """The camera a scene gets when it names no position: unit ``forward`` and ``up`` vectors."""
+
+    position: tuple[float, float, float]
+    target: tuple[float, float, float]
+    forward: tuple[float, float, float]
+    up: tuple[float, float, float]
+
+
+def default_view(volume) -> DefaultView:
+    """The default camera of ``volume``: at ``centre + bounding_radius * DEFAULT_OFFSET``, looking at the centre."""
+    centre = np.asarray(volume.center, dtype=np.float64)
+    position = centre + volume.bounding_radius * np.asarray(DEFAULT_OFFSET)
+    camera = Camera(position=tuple(float(v) for v in position), target=tuple(float(v) for v in centre))
+    forward, _, up = camera.frame()
+    return DefaultView(position=camera.position, target=camera.target, forward=tuple(forward), up=tuple(up))

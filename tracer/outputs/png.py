@@ -6,7 +6,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .atomic import atomic_path
+from ..io.atomic import atomic_path
 
 
 def srgb_encode(linear) -> np.ndarray:

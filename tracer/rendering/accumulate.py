@@ -1,8 +1,8 @@
-"""Running sums per pixel, their conversion to buffers, and the exact merge of sample ranges.
+"""Running sums per pixel, their conversion to buffers, and the exact pooling of disjoint sample ranges.
 
 Sums are float64 and each pixel receives its samples in increasing sample index, so a
 render split into passes, threads or resumed from a checkpoint adds the same numbers in the
-same order: the bits do not change. Disjoint sample ranges of the same scene and seed merge
+same order: the bits do not change. Disjoint sample ranges of the same scene and seed pool
 into the buffers of one render of their union (up to float32 rounding of the stored means),
 using the pairwise update of means and squared deviations (Chan, Golub and LeVeque 1983).
 """
@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from .buffers import Frame
-from .errors import UserError
+from ..errors import UserError
 
 N_BASE_CHANNELS = 10
 BLOCK = 8
@@ -26,15 +26,15 @@ def n_channels(n_levels: int) -> int:
 class Accumulator:
     """Float64 sums for an H x W frame over a contiguous range of sample indices."""
 
-    def __init__(self, height: int, width: int, n_levels: int = 0, sample_offset: int = 0, sums=None, n_samples=0):
+    def __init__(self, height: int, width: int, n_levels: int = 0, first_sample: int = 0, sums=None, n_samples=0):
         self.n_levels = n_levels
-        self.sample_offset = int(sample_offset)
+        self.first_sample = int(first_sample)
         self.n_samples = int(n_samples)
         self.sums = np.zeros((height, width, n_channels(n_levels))) if sums is None else sums
 
     @property
     def next_sample(self) -> int:
-        return self.sample_offset + self.n_samples
+        return self.first_sample + self.n_samples
 
     def to_buffers(self) -> dict[str, np.ndarray]:
         n = self.n_samples
@@ -79,24 +79,24 @@ def merge_frames(frames: list[Frame]) -> Frame:
         If the scenes, seeds or sizes differ, or sample ranges overlap.
     """
     if len(frames) < 2:
-        raise UserError("merge: give at least two renders")
+        raise UserError("pool: give at least two renders")
     first = frames[0]
     names = [frame.meta.get("source_file", f"input {i + 1}") for i, frame in enumerate(frames)]
     reference_scene = _scene_key(first.meta)
     for name, frame in zip(names[1:], frames[1:]):
         if frame.meta.get("seed") != first.meta.get("seed"):
             raise UserError(f"{name}: seed {frame.meta.get('seed')} differs from {names[0]}'s {first.meta.get('seed')}; "
-                            "only renders with the same seed and disjoint sample ranges can be merged")
+                            "only renders with the same seed and disjoint sample ranges can be pooled")
         if _scene_key(frame.meta) != reference_scene:
-            raise UserError(f"{name}: scene differs from {names[0]}'s; only renders of the same scene can be merged")
+            raise UserError(f"{name}: scene differs from {names[0]}'s; only renders of the same scene can be pooled")
         if set(frame.buffers) != set(first.buffers):
             raise UserError(f"{name}: buffers differ from {names[0]}'s")
-    ranges = sorted((int(f.meta["sample_offset"]), int(f.meta["sample_offset"]) + int(f.meta["spp"]), name)
+    ranges = sorted((int(f.meta["first_sample"]), int(f.meta["first_sample"]) + int(f.meta["spp"]), name)
                     for f, name in zip(frames, names))
     for (a0, a1, a_name), (b0, b1, b_name) in zip(ranges, ranges[1:]):
         if b0 < a1:
             raise UserError(f"{b_name}: samples [{b0}, {b1}) overlap {a_name}'s [{a0}, {a1}); "
-                            "merged renders must cover disjoint sample ranges")
+                            "pooled renders must cover disjoint sample ranges")
 
     n_total = 0
     mean = None
@@ -139,7 +139,8 @@ def merge_frames(frames: list[Frame]) -> Frame:
             out["albedo"] = _safe_divide(albedo, count[..., None])
     meta = dict(first.meta)
     meta.pop("source_file", None)
-    meta.update(spp=n_total, sample_offset=ranges[0][0],
+    meta.pop("compile_seconds", None)
+    meta.update(spp=n_total, first_sample=ranges[0][0],
                 render_seconds=sum(float(f.meta.get("render_seconds", 0.0)) for f in frames),
                 merged_from=[[a, b] for a, b, _ in ranges])
     if ranges[-1][1] - ranges[0][0] != n_total:

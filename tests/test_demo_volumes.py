@@ -5,8 +5,8 @@ import hashlib
 import numpy as np
 import pytest
 
-from tracer.samples import GENERATORS, generate, write_samples
-from tracer.volume import load_volume
+from tracer.volumes.demo import GENERATORS, generate, write_demo_volumes
+from tracer.volumes import load_volume
 
 
 def sha256(array):
@@ -19,7 +19,7 @@ def test_shipped_volume_regenerates_bit_identically(root, name, tmp_path):
     fresh = generate(name)
     assert shipped.source_dtype == fresh.data.dtype.name
     assert sha256(shipped.data) == sha256(fresh.data.astype(np.float32))
-    written = write_samples(tmp_path, [name])[0]
+    written = write_demo_volumes(tmp_path, [name])[0]
     again = load_volume(written)
     assert sha256(again.data) == sha256(shipped.data)
     np.testing.assert_allclose(again.directions, shipped.directions)

@@ -16,7 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import UserError
+from ..errors import UserError
 from .metrics import Scores, score
 
 
@@ -79,7 +79,7 @@ def read_radiance(path) -> tuple[np.ndarray, dict, dict]:
     arrays and its meta (empty when absent)."""
     path = Path(path)
     if path.suffix.lower() == ".exr":
-        from .io.exr import read_exr_channels
+        from ..outputs.exr import read_exr_channels
 
         channels, header = read_exr_channels(path)
         if not all(c in channels for c in "RGB"):
@@ -92,7 +92,7 @@ def read_radiance(path) -> tuple[np.ndarray, dict, dict]:
         return radiance, others, meta
     if path.suffix.lower() != ".npz":
         raise UserError(f"{path}: expected an .npz or .exr image")
-    from .io.npz import load_arrays
+    from ..outputs.npz import load_arrays
 
     contents = load_arrays(path)
     if "radiance" not in contents:
@@ -170,8 +170,8 @@ def plot_report(report: ScoreReport, reference, candidate, path, title: str = ""
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from .io.atomic import atomic_path
-    from .io.png import to_display
+    from ..io.atomic import atomic_path
+    from ..outputs.png import to_display
 
     panels = 2 if report.ladder else 1
     figure, axes = plt.subplots(1, panels, figsize=(5.2 * panels, 4.2), squeeze=False, layout="constrained")
@@ -214,7 +214,7 @@ def score_dataset(folder, predictions, *, input_spp: int | None = None, denoise_
     """Score ``PREDICTIONS/ITEM_ID.npz`` (or ``.exr``) against each item's reference, with the item's
     own input renders as the ladder. The candidate's time is the render time of its ``input_spp``
     input (from the manifest) plus ``denoise_seconds``."""
-    from .dataset.manifest import read_manifest
+    from ..dataset.manifest import read_manifest
 
     folder, predictions = Path(folder), Path(predictions)
     records = read_manifest(folder)

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .buffers import Frame
-from .errors import UserError
+from ..rendering.buffers import Frame
+from ..errors import UserError
 
 FORMATS = ("npz", "exr", "png")
 
@@ -37,18 +37,18 @@ def parse_formats(text: str) -> tuple[str, ...]:
 def save_frame(frame: Frame, out_dir, name: str, formats=("npz", "png"), exposure: float = 0.0,
                sheet: bool = False) -> list[Path]:
     """Write ``name.npz`` (always) and the other asked formats into ``out_dir``; returns the paths."""
-    from .io.npz import write_npz
+    from .npz import write_npz
 
     out_dir = Path(out_dir)
     if not name or "/" in name or name.startswith("."):
         raise UserError(f"--name: {name!r} is not a plain file name")
     paths = [write_npz(out_dir / f"{name}.npz", frame)]
     if "exr" in formats:
-        from .io.exr import write_exr
+        from .exr import write_exr
 
         paths.append(write_exr(out_dir / f"{name}.exr", frame))
     if "png" in formats:
-        from .io.png import write_preview
+        from .png import write_preview
 
         paths.append(write_preview(out_dir / f"{name}.png", frame["radiance"], exposure))
     if sheet:

@@ -8,9 +8,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ..buffers import Frame, buffer_specs
+from ..rendering.buffers import Frame, buffer_specs
 from ..errors import UserError
-from .atomic import atomic_path
+from ..io.atomic import atomic_path
 
 
 def write_npz(path, frame: Frame) -> Path:
@@ -71,5 +71,7 @@ def read_npz(path) -> Frame:
         if array.ndim not in (2, 3) or array.shape != expected or (shape is not None and array.shape[:2] != shape):
             raise UserError(f"{path}: {spec.key}: unexpected shape {array.shape}")
         shape = array.shape[:2]
+    if "sample_offset" in meta and "first_sample" not in meta:     # written before the key was renamed
+        meta["first_sample"] = meta.pop("sample_offset")
     meta["source_file"] = str(path)
     return Frame(buffers={k: v.astype(np.float32, copy=False) for k, v in contents.items()}, meta=meta)

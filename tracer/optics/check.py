@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .transfer import TransferFunction
-from .volume import Volume
+from ..volumes.volume import Volume
 
 #: Optical depth below which a crossing ray keeps 90 % of its light: "nearly invisible".
 NEARLY_INVISIBLE_DEPTH = 0.105
@@ -106,7 +106,7 @@ def plot_transfer_check(volume: Volume, tf: TransferFunction, check: TransferChe
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from .io.atomic import atomic_path
+    from ..io.atomic import atomic_path
 
     lo, hi = check.data_range
     a, b = check.tf_span

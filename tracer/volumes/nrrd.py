@@ -17,9 +17,8 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import UserError
+from .volume import ACCEPTED_DTYPES, BYTES_PER_VOXEL
 
-#: NRRD ``type`` values we accept, by the numpy dtype they read as.
-ACCEPTED_DTYPES = ("int8", "uint8", "int16", "uint16", "int32", "uint32", "float32", "float64")
 ENCODINGS = ("raw", "gzip", "gz", "bzip2", "bz2", "ascii", "text", "txt")
 
 
@@ -31,6 +30,7 @@ class RawVolume:
     origin: np.ndarray        # (3,) mm
     directions: np.ndarray    # (3, 3) row a = world step (mm) of index axis a
     dtype: str
+    space: str | None = None  # the header's ``space`` field, as written
 
 
 def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
@@ -72,8 +72,6 @@ def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
     if dtype.name.replace(">", "").replace("<", "") not in ACCEPTED_DTYPES:
         raise UserError(f"{path}: type: {type_name!r} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
 
-    from ..volume import BYTES_PER_VOXEL
-
     n_bytes = int(np.prod(sizes)) * (dtype.itemsize + BYTES_PER_VOXEL)
     if n_bytes > budget_bytes:
         raise UserError(
@@ -98,7 +96,9 @@ def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
     if tuple(data.shape) != tuple(sizes):
         raise UserError(f"{path}: data: read shape {data.shape} does not match sizes {sizes}")
     data = data.astype(data.dtype.newbyteorder("="), copy=False)
-    return RawVolume(data=data, origin=origin, directions=directions, dtype=data.dtype.name)
+    space = header.get("space")
+    return RawVolume(data=data, origin=origin, directions=directions, dtype=data.dtype.name,
+                     space=None if space is None else str(space))
 
 
 def _check_detached(path: Path, data_file: str) -> None:
@@ -146,18 +146,23 @@ def _reason(error: BaseException) -> str:
     return text.splitlines()[0]
 
 
-def write_nrrd(path: Path, data: np.ndarray, origin, directions, *, compression_level: int = 9) -> None:
-    """Write a volume in [x, y, z] order as a gzip NRRD, atomically."""
+def write_nrrd(path: Path, data: np.ndarray, origin, directions, *, space: str = "3D-right-handed",
+               compression_level: int = 9) -> None:
+    """Write a volume in [x, y, z] order as a gzip NRRD, atomically.
+
+    ``space`` defaults to ``3D-right-handed``: world axes with no anatomical meaning (NRRD file
+    format specification, teem), as for the demo volumes, which are not patient scans.
+    """
     import nrrd
 
     header = {
-        "space": "right-anterior-superior",
+        "space": space,
         "space directions": np.asarray(directions, dtype=np.float64),
         "space origin": np.asarray(origin, dtype=np.float64),
         "kinds": ["domain", "domain", "domain"],
         "encoding": "gzip",
     }
-    from .atomic import atomic_path
+    from ..io.atomic import atomic_path
 
     with atomic_path(path) as temporary:
         nrrd.write(str(temporary), data, header, index_order="F", compression_level=compression_level)

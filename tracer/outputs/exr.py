@@ -1,7 +1,7 @@
 """Multi-layer OpenEXR files through the official OpenEXR bindings.
 
-Channel names follow DESIGN's contract (``R G B A``, ``variance.R``, ``event1.position.X``, ...),
-from :mod:`tracer.buffers`. Each channel is passed as its own contiguous 2-D float32 array
+Channel names follow the README's contract, "What a render writes" (``R G B A``, ``variance.R``,
+``event1.position.X``, ...), from :mod:`tracer.rendering.buffers`. Each channel is passed as its own contiguous 2-D float32 array
 (the bindings ignore strides), dicts are copied (the constructor mutates them), and the
 metadata is one JSON string attribute (integer and float attributes are 32-bit).
 """
@@ -12,9 +12,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ..buffers import Frame, buffer_specs
+from ..rendering.buffers import Frame, buffer_specs
 from ..errors import UserError
-from .atomic import atomic_path
+from ..io.atomic import atomic_path
 
 META_ATTRIBUTE = "tracer_meta"
 

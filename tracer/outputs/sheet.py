@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .buffers import Frame
-from .io.png import to_display
+from ..rendering.buffers import Frame
+from .png import to_display
 
 
 def write_contact_sheet(frame: Frame, path, exposure: float = 0.0, title: str | None = None) -> None:
@@ -19,7 +19,7 @@ def write_contact_sheet(frame: Frame, path, exposure: float = 0.0, title: str | 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from .io.atomic import atomic_path
+    from ..io.atomic import atomic_path
 
     panels = [("radiance", "radiance (sRGB)"), ("radiance_variance", "variance (log10)"), ("alpha", "alpha"),
               ("albedo", "albedo (sRGB)")]

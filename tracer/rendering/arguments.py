@@ -1,0 +1,51 @@
+"""The scene as the plain arrays and integer codes the path kernel takes (strings never reach compiled code)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..scene import Scene
+
+SCATTERING_CODES = {"medium": 0, "interface": 1, "graded": 2}
+ENVIRONMENT_CODES = {"constant": 0, "sky": 1, "image": 2}
+LIGHT_CODES = {"directional": 0, "point": 1}
+
+
+def kernel_arguments(scene: Scene, skipping: bool = True) -> tuple:
+    """The scene as the plain arrays and codes of :func:`tracer._kernels.integrate.render_rows` (before rows/samples/acc).
+
+    The macrocell grid of the current transfer function is built every time (exact: empty cells
+    have zero extinction everywhere); ``skipping`` decides whether rays step over empty cells.
+    """
+    volume = scene.volume
+    low, high = volume.value_range
+    transfer = scene.transfer_function.bake(low, high)
+    cells = macrocells(volume.data, transfer)
+    settings = scene.settings
+    lights = np.zeros((len(scene.lights), 7))
+    for index, light in enumerate(scene.lights):
+        lights[index, 0] = LIGHT_CODES[light.kind]
+        lights[index, 1:4] = light.vector
+        lights[index, 4:7] = light.power
+    environment = scene.environment
+    image = scene.environment_image if scene.environment_image is not None else np.zeros((2, 2, 3), np.float32)
+    background = np.zeros(3) if environment.background is None else np.asarray(environment.background, np.float64)
+    value_range = max(high - low, 1e-12)
+    gradient_scale = float(np.mean(volume.spacing)) / (value_range * settings.interface_gradient)
+    return (
+        volume.to_arrays(), transfer, cells, scene.camera.to_array(), lights,
+        ENVIRONMENT_CODES[environment.kind], np.asarray(environment.colors, dtype=np.float64),
+        np.ascontiguousarray(image, dtype=np.float32), background, environment.background is None,
+        SCATTERING_CODES[settings.scattering], settings.events, np.asarray(settings.feature_levels, dtype=np.float64),
+        float(settings.step_mm), float(settings.phase_g), gradient_scale,
+    ), bool(skipping)
+
+
+def macrocells(field: np.ndarray, transfer) -> np.ndarray:
+    """(ceil((nx-1)/8), ...) float32: the largest extinction inside each 8^3-voxel macrocell."""
+    from .._kernels.integrate import CELL, build_macrocells
+
+    shape = tuple(max(1, -(-(n - 1) // CELL)) for n in field.shape)
+    out = np.empty(shape, np.float32)
+    build_macrocells(field, transfer.extinction, transfer.lookup, out)
+    return out
