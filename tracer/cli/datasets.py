@@ -7,7 +7,15 @@ from typing import Annotated, Optional
 
 import typer
 
+from rich.markup import escape
+
 from .common import console, error_console, reports_user_errors
+
+
+def _cores() -> int:
+    import numba
+
+    return numba.config.NUMBA_NUM_THREADS
 
 
 def register(app: typer.Typer) -> None:
@@ -23,6 +31,8 @@ def dataset(
     workers: Annotated[Optional[int], typer.Option(help="Start a local Dask cluster with this many worker processes.")] = None,
     scheduler: Annotated[Optional[str], typer.Option(help="Use an existing Dask scheduler, tcp://HOST:PORT.")] = None,
     dashboard: Annotated[bool, typer.Option("--dashboard", help="Serve the Dask dashboard on 127.0.0.1:8787.")] = False,
+    threads: Annotated[Optional[int], typer.Option(help="numba threads: of this process when serial, of each worker "
+                       "with --workers (default: the cores, shared among the workers); the files do not depend on it.")] = None,
 ):
     """Build a dataset: per view, noisy inputs at every spp of a ladder and a certified reference.
 
@@ -44,6 +54,11 @@ def dataset(
         raise UserError(f"--workers: must be at least 1, got {workers}")
     if scheduler is not None:
         check_scheduler_address(scheduler)
+        if threads is not None:
+            raise UserError("--threads: an existing cluster's workers keep their own thread count "
+                            "(set NUMBA_NUM_THREADS where they start)")
+    if threads is not None and (threads < 1 or (workers is None and threads > _cores())):
+        raise UserError(f"--threads: must be a whole number from 1 to {_cores()} (the cores here), got {threads}")
     load_plan(plan)
     check_output_folder(out)
     columns = [TextColumn("[bold]items"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(), TextColumn("eta"),
@@ -55,17 +70,17 @@ def dataset(
             progress.update(task, completed=done, total=total)
 
         summary = build_dataset(plan, out, resume=resume, workers=workers, scheduler=scheduler, dashboard=dashboard,
-                                on_progress=report)
-    console.print(f"{summary.n_items} items in {out} ({summary.n_done_before} were already done), "
+                                on_progress=report, numba_threads=threads)
+    console.print(f"{summary.n_items} items in {escape(str(out))} ({summary.n_done_before} were already done), "
                   f"{summary.seconds:.1f} s")
-    console.print("  per split: " + ", ".join(f"{name} {count}" for name, count in summary.per_split.items()))
+    console.print("  per split: " + escape(", ".join(f"{name} {count}" for name, count in summary.per_split.items())))
     console.print(f"  samples traced: {summary.total_samples / 1e6:.1f} M paths")
     psnr = "n/a" if summary.worst_reference_psnr_db is None else f"{summary.worst_reference_psnr_db:.1f} dB"
     console.print(f"  worst reference: mean relative error {summary.worst_reference_error:.4f}, "
                   f"PSNR against converged {psnr}")
     if summary.uncertified:
         error_console.print(f"[yellow]warning:[/yellow] {len(summary.uncertified)} references missed the plan's "
-                            f"target: {', '.join(summary.uncertified[:5])}")
+                            f"target: {escape(', '.join(summary.uncertified[:5]))}")
 
 
 @reports_user_errors
@@ -79,4 +94,4 @@ def dataset_sheet(
     from ..dataset.sheet import write_dataset_sheet
 
     path = write_dataset_sheet(folder, out or folder / "sheet.png", n_items=items, exposure=exposure)
-    console.print(f"wrote {path}")
+    console.print(f"wrote {escape(str(path))}")

@@ -7,13 +7,22 @@ from typing import Annotated, Optional
 
 import typer
 
-from .common import console, reports_user_errors
+from rich.markup import escape
+
+from .common import console, reports_user_errors, threads_option
 
 
 def register(app: typer.Typer) -> None:
     app.command("score")(score)
     app.command("score-dataset")(score_dataset)
     app.command("denoise")(denoise)
+
+
+def aligned_rows(rows) -> list[str]:
+    """(label, value, unit, note) rows as lines whose values line up on the right and notes on the left."""
+    widths = [max(len(row[k]) for row in rows) for k in range(3)]
+    return [f"{label:<{widths[0]}}  {value:>{widths[1]}} {unit:<{widths[2]}}  {note}".rstrip()
+            for label, value, unit, note in rows]
 
 
 def _fmt(value, pattern="{:.2f}"):
@@ -47,26 +56,32 @@ def score(
     report = score_files(reference, candidate, ladder=ladder or (), seconds=seconds, exposure=exposure,
                          covered_only=covered_only)
     s = report.scores
-    console.print(f"[bold]{candidate.name}[/bold] against {reference.name} "
+    console.print(f"[bold]{escape(candidate.name)}[/bold] against {escape(reference.name)} "
                   f"({s.n_pixels} {'covered ' if s.covered_only else ''}pixels, exposure {exposure:+g})")
-    console.print(f"  PSNR            {s.psnr_db:.2f} dB   (display-referred, sRGB, peak 1)")
-    console.print(f"  SSIM            {s.ssim:.4f}      (Wang et al. 2004; 11x11 Gaussian window, sigma 1.5, K1 0.01, K2 0.03)")
-    console.print(f"  MSE             {s.mse:.4g}    (linear radiance)")
-    console.print(f"  relative MSE    {s.relative_mse:.4g}    (linear, / (reference^2 + 0.01))")
+    rows = [("PSNR", f"{s.psnr_db:.2f}", "dB", "display-referred, sRGB, peak 1"),
+            ("SSIM", f"{s.ssim:.4f}", "", "Wang et al. 2004; 11x11 Gaussian window, sigma 1.5, K1 0.01, K2 0.03"),
+            ("MSE", f"{s.mse:.4g}", "", "linear radiance"),
+            ("relative MSE", f"{s.relative_mse:.4g}", "", "linear, / (reference^2 + 0.01)")]
     if report.ladder:
-        console.print("  ladder          " + ", ".join(f"{p.spp} spp {p.psnr_db:.2f} dB" for p in report.ladder))
-        console.print(f"  equal quality   {report.equal_quality_spp:.1f} spp" + (" (extrapolated)" if report.extrapolated else ""))
+        rows.append(("equal quality", f"{report.equal_quality_spp:.1f}", "spp",
+                     "extrapolated beyond the ladder" if report.extrapolated else "on the ladder's PSNR-log2(spp) line"))
         if report.speedup is not None:
-            console.print(f"  speedup         {report.speedup:.1f}x ({report.equal_quality_spp:.1f} spp x "
-                          f"{report.seconds_per_spp:.3g} s/spp vs {report.candidate_seconds:.3g} s)")
+            rows.append(("speedup", f"{report.speedup:.1f}", "x", f"{report.equal_quality_spp:.1f} spp x "
+                         f"{report.seconds_per_spp:.3g} s/spp vs {report.candidate_seconds:.3g} s"))
+    for line in aligned_rows(rows):
+        console.print("  " + escape(line), highlight=False)
+    if report.ladder:
+        console.print("  ladder: " + ", ".join(f"{p.spp} spp {p.psnr_db:.2f} dB" for p in report.ladder), highlight=False)
+    if report.no_speedup:
+        console.print(f"  {report.no_speedup}", highlight=False)
     if json_out is not None:
         with atomic_path(json_out) as temporary:
             temporary.write_text(json.dumps(report.as_dict(), indent=2))
-        console.print(f"  wrote {json_out}")
+        console.print(f"  wrote {escape(str(json_out))}")
     if plot is not None:
         plot_report(report, read_radiance(reference)[0], read_radiance(candidate)[0], plot,
                     title=f"{candidate.name}", exposure=exposure)
-        console.print(f"  wrote {plot}")
+        console.print(f"  wrote {escape(str(plot))}")
 
 
 @reports_user_errors
@@ -91,7 +106,7 @@ def score_dataset(
     items = run(folder, predictions, input_spp=input_spp, denoise_seconds=denoise_seconds, exposure=exposure,
                 covered_only=covered_only)
     summary = aggregate(items)
-    table = Table(title=f"{folder.name}: {len(items)} items")
+    table = Table(title=escape(f"{folder.name}: {len(items)} items"))
     for column in ("split", "items", "PSNR dB", "SSIM", "rel. MSE", "equal-quality spp", "speedup"):
         table.add_column(column, justify="right" if column != "split" else "left")
     for name, row in summary.items():
@@ -110,7 +125,7 @@ def score_dataset(
                          f"{_fmt(row['equal_quality_spp'], '{:.3f}')},,{_fmt(row['speedup'], '{:.3f}')}\n")
         with atomic_path(csv) as temporary:
             temporary.write_text(buffer.getvalue())
-        console.print(f"wrote {csv}")
+        console.print(f"wrote {escape(str(csv))}")
 
 
 @reports_user_errors
@@ -125,7 +140,7 @@ def denoise(
     sigma_depth: Annotated[float, typer.Option(help="Depth edge-stopping, relative to the local depth gradient (0: off).")] = 0.0,
     sigma_position: Annotated[float, typer.Option(help="Position edge-stopping in mm (0: off).")] = 0.0,
     exposure: Annotated[float, typer.Option(help="Exposure in stops for the PNG preview.")] = 0.0,
-    threads: Annotated[Optional[int], typer.Option(help="numba threads.")] = None,
+    threads: threads_option = None,
 ):
     """Filter a render with the classical feature-guided baseline (edge-avoiding a-trous wavelets).
 
@@ -155,6 +170,8 @@ def denoise(
                         "settings": settings.__dict__}
     write_npz(target, Frame(buffers=buffers, meta=meta))
     write_preview(target.with_suffix(".png"), result.radiance, exposure)
-    console.print(f"filtered {input.name} in {result.seconds:.3f} s ({'colour only' if color_only else 'feature-guided'}, "
-                  f"noise from the {result.variance_source} variance)")
-    console.print(f"  wrote {target}")
+    if result.compile_seconds >= 0.05:
+        console.print(f"compiled the filter in {result.compile_seconds:.1f} s (first run only; not in the filter time)")
+    console.print(f"filtered {escape(input.name)} in {result.seconds:.3f} s "
+                  f"({'colour only' if color_only else 'feature-guided'}, noise from the {result.variance_source} variance)")
+    console.print(f"  wrote {escape(str(target))}")

@@ -49,7 +49,8 @@ def build_dataset(plan_path, out_dir, *, resume: bool = False, workers: int | No
     ``workers`` starts a local Dask cluster (processes, one thread each, numba threads so that the
     total matches the cores, bound to 127.0.0.1); ``scheduler`` uses an existing one. Neither: serial
     in this process (numba threads in the kernel). ``limit`` stops after that many new items (for tests);
-    ``numba_threads`` overrides the numba threads of each local worker (for benchmarks).
+    ``numba_threads`` sets the numba threads of this process when serial, or of each local worker
+    (the files do not depend on it).
     """
     plan = load_plan(plan_path)
     out_dir = Path(out_dir)
@@ -87,8 +88,11 @@ def build_dataset(plan_path, out_dir, *, resume: bool = False, workers: int | No
 
     plan_arguments = (str(Path(plan_path).resolve()), plan.fingerprint)
     if workers is None and scheduler is None:
-        for item in todo:
-            finished(_run_item_serially(plan, item, plan_arguments, out_dir))
+        from ..config import num_threads
+
+        with num_threads(numba_threads):
+            for item in todo:
+                finished(_run_item_serially(plan, item, plan_arguments, out_dir))
     else:
         from .cluster import run_on_cluster
 

@@ -8,7 +8,7 @@ import numpy as np
 
 from ..errors import UserError
 from ..outputs.npz import read_npz
-from ..outputs.png import to_display
+from ..outputs.sheet import draw_buffer
 from .manifest import read_manifest
 
 
@@ -33,15 +33,12 @@ def write_dataset_sheet(folder, path, n_items: int = 4, exposure: float = 0.0) -
                         key=lambda f: f["spp"])
         reference_entry = next(f for f in record["files"].values() if f["role"] == "reference" and f["path"].endswith(".npz"))
         low, high, reference = (read_npz(folder / entry["path"]) for entry in (inputs[0], inputs[-1], reference_entry))
-        hit = reference["event1_hit"] > 0
-        depth = np.where(hit, reference["event1_depth"], np.nan)
-        images = [to_display(low["radiance"], exposure), to_display(high["radiance"], exposure),
-                  to_display(reference["radiance"], exposure), to_display(reference["albedo"]),
-                  np.clip(reference["event1_normal"] * 0.5 + 0.5, 0, 1) * hit[..., None], depth]
         titles = [f"{inputs[0]['spp']} spp", f"{inputs[-1]['spp']} spp", f"reference {reference_entry['spp']} spp",
-                  "albedo", "event1 normal", "event1 depth"]
-        for axis, image, title in zip(row, images, titles):
-            axis.imshow(image, cmap="viridis" if image.ndim == 2 else None)
+                  "albedo", "event1 normal", "event1 depth (mm)"]
+        sources = [(low, "radiance"), (high, "radiance"), (reference, "radiance"), (reference, "albedo"),
+                   (reference, "event1_normal"), (reference, "event1_depth")]
+        for axis, (frame, key), title in zip(row, sources, titles):
+            draw_buffer(figure, axis, frame, key, exposure)
             axis.set_title(title, fontsize=8)
             axis.set_xticks([])
             axis.set_yticks([])

@@ -99,12 +99,34 @@ def check_transfer_function(volume: Volume, tf: TransferFunction) -> TransferChe
     )
 
 
+def clipped_histogram(values: np.ndarray, low: float, high: float, n_bins: int = 200):
+    """Voxel shares (%) per value bin, with a ceiling that keeps a huge spike (the background around a
+    scan, say) from flattening the rest: bins above 2.5 x the 90th percentile of the occupied bins are
+    clipped. Returns (centres, shares, ceiling, clipped bin indices)."""
+    counts, edges = np.histogram(values, bins=n_bins, range=(low, high if high > low else low + 1))
+    shares = 100.0 * counts / max(counts.sum(), 1)
+    occupied = shares[shares > 0]
+    ceiling = 2.5 * float(np.percentile(occupied, 90)) if occupied.size else 1.0
+    if shares.max() <= ceiling:
+        ceiling = float(max(shares.max(), 1e-9)) * 1.05
+    clipped = np.flatnonzero(shares > ceiling)
+    return 0.5 * (edges[1:] + edges[:-1]), shares, ceiling, clipped
+
+
 def plot_transfer_check(volume: Volume, tf: TransferFunction, check: TransferCheck, path) -> None:
-    """A PNG: the value histogram (log count) under the opacity curve and an albedo colour band."""
+    """A one-page report (PNG): what the function makes of each value, and how far light gets.
+
+    Top: the opacity per reference length as an area tinted by the albedo at each value, over the
+    volume's value distribution (voxel shares, with a background spike clipped and labelled).
+    Bottom: the mean free path 1/sigma per value on a log scale, with the lengths at which the
+    verdict changes marked ("only the outer shell" below, "nearly invisible" above), and the
+    typical material's free path. The verdict and the key figures are printed beside.
+    """
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+    from matplotlib.patches import Polygon
 
     from ..io.atomic import atomic_path
 
@@ -113,30 +135,85 @@ def plot_transfer_check(volume: Volume, tf: TransferFunction, check: TransferChe
     x_lo, x_hi = min(lo, a), max(hi, b)
     if x_hi == x_lo:
         x_hi = x_lo + 1
-    counts, edges = np.histogram(volume.data, bins=256, range=(lo, hi if hi > lo else lo + 1))
-    figure, (axis, band) = plt.subplots(2, 1, figsize=(8, 4.8), sharex=True, layout="constrained",
-                                        gridspec_kw={"height_ratios": [6, 1]})
-    centres = 0.5 * (edges[1:] + edges[:-1])
-    axis.fill_between(centres, np.maximum(counts, 0.8), 0.8, step="mid", color="0.75", label="voxel count (log)")
-    axis.set_yscale("log")
-    axis.set_ylim(0.8, max(counts.max(), 1) * 2)
-    axis.set_ylabel("voxels (log)")
-    curve = axis.twinx()
     grid = np.linspace(x_lo, x_hi, 1024)
-    curve.plot(grid, tf.opacity_at(grid), color="black", lw=2, label="opacity per reference length")
-    curve.plot(tf.opacity_values, tf.opacity, "o", color="black", ms=4)
-    curve.set_ylim(-0.02, 1.05)
-    curve.set_ylabel(f"opacity per {tf.reference_length_mm:g} mm")
-    axis.axvspan(x_lo, lo, color="tab:red", alpha=0.08)
-    axis.axvspan(hi, x_hi, color="tab:red", alpha=0.08)
-    axis.set_title(f"{tf.name} on {volume.source.split('/')[-1]}: {check.verdict}", fontsize=9)
-    colors = np.clip(tf.albedo_at(grid), 0, 1)
-    band.imshow(colors[None], aspect="auto", extent=(x_lo, x_hi, 0, 1))
-    band.set_yticks([])
-    band.set_ylabel("albedo", rotation=0, ha="right", va="center")
-    band.set_xlabel("scalar value")
-    handles = axis.get_legend_handles_labels()[0] + curve.get_legend_handles_labels()[0]
-    axis.legend(handles, [h.get_label() for h in handles], loc="upper left", fontsize=8, framealpha=0.9)
+    opacity = tf.opacity_at(grid)
+    albedo = np.clip(tf.albedo_at(grid), 0, 1)
+    ink, muted, accent = "#1f2a36", "#8a94a6", "#b5651d"
+
+    figure = plt.figure(figsize=(10, 5.6), layout="constrained")
+    spec = figure.add_gridspec(2, 2, width_ratios=[3.2, 1], height_ratios=[1.25, 1])
+    top = figure.add_subplot(spec[0, 0])
+    bottom = figure.add_subplot(spec[1, 0], sharex=top)
+    notes = figure.add_subplot(spec[:, 1])
+
+    # opacity as an albedo-tinted area: a colour strip clipped to the region under the curve
+    top.imshow(albedo[None], aspect="auto", extent=(x_lo, x_hi, 0, 1), origin="lower", zorder=1)
+    under = Polygon(np.column_stack([np.r_[x_lo, grid, x_hi], np.r_[0, opacity, 0]]), closed=True,
+                    transform=top.transData, facecolor="none", edgecolor="none")
+    top.add_patch(under)
+    top.images[0].set_clip_path(under)
+    top.plot(grid, opacity, color=ink, lw=1.2, zorder=3)
+    top.set_ylim(0, 1.05)
+    top.set_ylabel(f"opacity per {tf.reference_length_mm:g} mm\n(area tinted by albedo)", fontsize=8)
+    share_axis = top.twinx()
+    centres, shares, ceiling, clipped = clipped_histogram(volume.data[np.isfinite(volume.data)].ravel(), lo, hi)
+    # drawn on the opacity axes (scaled to the share axis) so the area never hides it
+    to_top = 1.05 / (ceiling * 1.1)
+    top.step(centres, np.minimum(shares, ceiling) * to_top, where="mid", color="#4d5b73", lw=0.9, zorder=4)
+    runs = np.split(clipped, np.flatnonzero(np.diff(clipped) > 1) + 1) if clipped.size else []
+    for run in runs:
+        index = run[np.argmax(shares[run])]
+        top.annotate(f"{shares[run].sum():.0f}% of voxels\n(clipped)", xy=(centres[index], ceiling * to_top),
+                     xytext=(6, -18), textcoords="offset points", fontsize=7, color=ink, zorder=5,
+                     bbox=dict(boxstyle="round,pad=0.15", fc=(1, 1, 1, 0.8), ec="none"),
+                     arrowprops=dict(arrowstyle="-", color=muted, lw=0.6))
+    share_axis.set_ylim(0, ceiling * 1.1)
+    share_axis.set_ylabel("voxels per bin (%)", color=muted, fontsize=8)
+    share_axis.tick_params(axis="y", colors=muted, labelsize=7)
+    top.set_zorder(share_axis.get_zorder() + 1)
+    top.patch.set_visible(False)
+    for edge in (lo, hi):
+        top.axvline(edge, color=muted, lw=0.6, ls=":")
+    top.set_title("what each value becomes", fontsize=9, loc="left")
+
+    # mean free path per value, against the verdict's thresholds
+    sigma = tf.extinction_at(grid)
+    with np.errstate(divide="ignore"):
+        free_path = np.where(sigma > 0, 1.0 / np.maximum(sigma, 1e-300), np.nan)
+    shell = SHELL_FRACTION * check.diagonal_mm
+    faint = check.diagonal_mm / NEARLY_INVISIBLE_DEPTH
+    finite = free_path[np.isfinite(free_path)]
+    y_low = min(shell / 4, finite.min() / 2) if finite.size else shell / 4
+    y_high = max(faint * 4, finite.max() * 2) if finite.size else faint * 4
+    bottom.axhspan(y_low, shell, color=accent, alpha=0.10, lw=0)
+    bottom.axhspan(faint, y_high, color=muted, alpha=0.12, lw=0)
+    bottom.axhline(shell, color=accent, lw=0.9, ls="--")
+    bottom.axhline(faint, color=muted, lw=0.9, ls="--")
+    bottom.text(x_lo, shell, "  only the outer shell shows below", va="top", fontsize=7, color=accent)
+    bottom.text(x_lo, faint, "  nearly invisible above", va="bottom", fontsize=7, color=muted)
+    bottom.plot(grid, free_path, color=ink, lw=1.4)
+    if math.isfinite(check.mean_free_path_mm):
+        bottom.axhline(check.mean_free_path_mm, color=ink, lw=0.6, ls=":")
+        bottom.text(x_hi, check.mean_free_path_mm, "typical material  ", ha="right", va="bottom", fontsize=7, color=ink)
+    bottom.set_yscale("log")
+    bottom.set_ylim(y_low, y_high)
+    bottom.set_ylabel("mean free path (mm)", fontsize=8)
+    bottom.set_xlabel("scalar value" + (" (HU)" if tf.scale == "HU" else ""), fontsize=8)
+    bottom.set_xlim(x_lo, x_hi)
+    bottom.set_title("how far light gets into material of each value (none drawn where transparent)", fontsize=9,
+                     loc="left")
+
+    notes.set_axis_off()
+    lines = [("verdict", check.verdict)] + [(line[:22].strip(), line[22:].strip()) for line in check.lines()[:-1]]
+    text = "\n".join(f"{label}\n    {value}" for label, value in lines)
+    if check.warnings:
+        text += "\n\nwarnings\n" + "\n".join(f"    {w}" for w in check.warnings)
+    import textwrap
+
+    wrapped = "\n".join(textwrap.fill(line, 40, subsequent_indent="    ") for line in text.splitlines())
+    notes.text(0.0, 1.0, wrapped, va="top", ha="left", fontsize=7.5, color=ink, family="monospace",
+               transform=notes.transAxes)
+    figure.suptitle(f"{tf.name} on {volume.source.split('/')[-1]}", fontsize=10, color=ink)
     with atomic_path(path) as temporary:
-        figure.savefig(temporary, dpi=110, format="png")
+        figure.savefig(temporary, dpi=100, format="png")
     plt.close(figure)

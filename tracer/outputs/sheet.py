@@ -13,6 +13,51 @@ from ..rendering.buffers import Frame
 from .png import to_display
 
 
+#: Where a per-event buffer has no event (depth): a dark grey of our own, so that an empty pixel never
+#: reads as a value of the colour map.
+NO_EVENT = "#2b2d33"
+
+
+def draw_buffer(figure, axis, frame: Frame, key: str, exposure: float = 0.0) -> None:
+    """Draw buffer ``key`` of ``frame`` into ``axis`` the way every sheet shows it (module docstring),
+    with a colour bar for depth and variance. Used by render sheets and dataset sheets alike."""
+    import matplotlib
+
+    data = frame[key]
+    colorbar = None
+    if key in ("radiance", "albedo"):
+        axis.imshow(to_display(data, exposure if key == "radiance" else 0.0))
+    elif key == "radiance_variance":
+        variance = data.mean(axis=2)
+        positive = variance[variance > 0]
+        # the colour range spans the bulk of the noisy pixels, so a few outliers do not squash it
+        low, high = np.percentile(positive, [1, 99.5]) if positive.size else (1e-12, 1e-11)
+        values = np.log10(np.clip(variance, low, max(high, low * 10)))
+        colorbar = axis.imshow(values, cmap="magma")
+    elif key.endswith("_normal"):
+        axis.imshow(np.clip(data * 0.5 + 0.5, 0, 1) * (np.linalg.norm(data, axis=2, keepdims=True) > 0))
+    elif key.endswith("_position"):
+        hit = frame[key.replace("_position", "_hit")] > 0
+        if hit.any():
+            low = data[hit].min(axis=0)
+            span = np.maximum(data[hit].max(axis=0) - low, 1e-9)
+            axis.imshow(np.clip((data - low) / span, 0, 1) * hit[..., None])
+        else:
+            axis.imshow(np.zeros_like(data))
+    elif key.endswith("_depth"):
+        hit = frame[key.replace("_depth", "_hit")] > 0
+        values = np.where(hit, data, np.nan)
+        finite = values[hit]
+        cmap = matplotlib.colormaps["viridis"].with_extremes(bad=NO_EVENT)
+        colorbar = axis.imshow(values, cmap=cmap,
+                               vmin=finite.min() if finite.size else 0, vmax=finite.max() if finite.size else 1)
+    else:
+        axis.imshow(data, cmap="gray", vmin=0, vmax=1)
+    if colorbar is not None:
+        bar = figure.colorbar(colorbar, ax=axis, fraction=0.046, pad=0.02)
+        bar.ax.tick_params(labelsize=7)
+
+
 def write_contact_sheet(frame: Frame, path, exposure: float = 0.0, title: str | None = None) -> None:
     import matplotlib
 
@@ -35,37 +80,7 @@ def write_contact_sheet(frame: Frame, path, exposure: float = 0.0, title: str | 
     for axis in axes.ravel():
         axis.set_axis_off()
     for axis, (key, label) in zip(axes.ravel(), panels):
-        data = frame[key]
-        colorbar = None
-        if key in ("radiance", "albedo"):
-            axis.imshow(to_display(data, exposure if key == "radiance" else 0.0))
-        elif key == "radiance_variance":
-            variance = data.mean(axis=2)
-            positive = variance[variance > 0]
-            # the colour range spans the bulk of the noisy pixels, so a few outliers do not squash it
-            low, high = np.percentile(positive, [1, 99.5]) if positive.size else (1e-12, 1e-11)
-            values = np.log10(np.clip(variance, low, max(high, low * 10)))
-            colorbar = axis.imshow(values, cmap="magma")
-        elif key.endswith("_normal"):
-            axis.imshow(np.clip(data * 0.5 + 0.5, 0, 1) * (np.linalg.norm(data, axis=2, keepdims=True) > 0))
-        elif key.endswith("_position"):
-            hit = frame[key.replace("_position", "_hit")] > 0
-            if hit.any():
-                low = data[hit].min(axis=0)
-                span = np.maximum(data[hit].max(axis=0) - low, 1e-9)
-                axis.imshow(np.clip((data - low) / span, 0, 1) * hit[..., None])
-            else:
-                axis.imshow(np.zeros_like(data))
-        elif key.endswith("_depth"):
-            hit = frame[key.replace("_depth", "_hit")] > 0
-            values = np.where(hit, data, np.nan)
-            finite = values[hit]
-            colorbar = axis.imshow(values, cmap="viridis",
-                                   vmin=finite.min() if finite.size else 0, vmax=finite.max() if finite.size else 1)
-        else:
-            axis.imshow(data, cmap="gray", vmin=0, vmax=1)
-        if colorbar is not None:
-            figure.colorbar(colorbar, ax=axis, fraction=0.046, pad=0.02)
+        draw_buffer(figure, axis, frame, key, exposure)
         axis.set_title(label, fontsize=9)
     spp = frame.meta.get("spp", "?")
     figure.suptitle(title or f"{frame.meta.get('scene', {}).get('volume', {}).get('path', '').split('/')[-1]}: "

@@ -37,16 +37,43 @@ class DenoiseSettings:
 @dataclass(frozen=True)
 class DenoiseResult:
     radiance: np.ndarray      # (H, W, 3) float32
-    seconds: float
+    seconds: float            # the filtering alone
     variance_source: str      # "buffer" or "spatial" (1-spp input: estimated over a 5 x 5 window)
+    compile_seconds: float = 0.0   # compiling (or loading) the filter's kernels, on a process's first call
 
 
 def denoise(frame: Frame, settings: DenoiseSettings = DenoiseSettings(), threads: int | None = None) -> DenoiseResult:
-    """Filter ``frame['radiance']`` guided by its feature buffers; see the module docstring."""
+    """Filter ``frame['radiance']`` guided by its feature buffers; see the module docstring.
+
+    The first call in a process compiles (or loads) the kernels on a tiny frame first, so that
+    ``seconds`` is the filtering alone and ``compile_seconds`` the rest.
+    """
+    from .._kernels.atrous import atrous_pass, feature_spread, spatial_variance
+
+    compile_seconds = 0.0
+    if not (atrous_pass.signatures and feature_spread.signatures and spatial_variance.signatures):
+        started = time.perf_counter()
+        for spp in (1, 2):         # the 1-spp path also compiles the spatial variance estimate
+            _filter(_tiny_frame(), DenoiseSettings(iterations=1), threads, spp=spp)
+        compile_seconds = time.perf_counter() - started
+    start = time.perf_counter()
+    result, source = _filter(frame, settings, threads, spp=frame.meta.get("spp", 1))
+    return DenoiseResult(radiance=result, seconds=time.perf_counter() - start, variance_source=source,
+                         compile_seconds=compile_seconds)
+
+
+def _tiny_frame() -> Frame:
+    from ..rendering.buffers import buffer_specs
+
+    buffers = {spec.key: np.zeros((4, 4) + ((3,) if spec.channels == 3 else ()), np.float32) for spec in buffer_specs()}
+    return Frame(buffers=buffers, meta={})
+
+
+def _filter(frame: Frame, settings: DenoiseSettings, threads: int | None, *, spp: int):
+    """The filter itself; returns the filtered radiance and where its noise estimate came from."""
     from .._kernels.atrous import atrous_pass, feature_spread, spatial_variance
     from ..config import num_threads
 
-    start = time.perf_counter()
     radiance = np.ascontiguousarray(frame["radiance"], dtype=np.float32)
     height, width = radiance.shape[:2]
     hit = np.ascontiguousarray(frame["event1_hit"], dtype=np.float32)
@@ -60,7 +87,7 @@ def denoise(frame: Frame, settings: DenoiseSettings = DenoiseSettings(), threads
 
     with num_threads(threads):
         variance_buffer = np.asarray(frame["radiance_variance"], dtype=np.float64)
-        if frame.meta.get("spp", 1) >= 2:
+        if spp >= 2:
             channel_variance = variance_buffer / np.maximum(factor, 1e-3) ** 2
             variance = (0.2126**2 * channel_variance[..., 0] + 0.7152**2 * channel_variance[..., 1]
                         + 0.0722**2 * channel_variance[..., 2]).astype(np.float32)
@@ -89,5 +116,4 @@ def denoise(frame: Frame, settings: DenoiseSettings = DenoiseSettings(), threads
                         1 << iteration, use_features, out_color, out_variance)
             color, out_color = out_color, color
             variance, out_variance = out_variance, variance
-    result = (color * factor).astype(np.float32)
-    return DenoiseResult(radiance=result, seconds=time.perf_counter() - start, variance_source=source)
+    return (color * factor).astype(np.float32), source

@@ -35,6 +35,7 @@ class ScoreReport:
     extrapolated: bool = False
     seconds_per_spp: float | None = None
     candidate_seconds: float | None = None
+    no_speedup: str | None = None      # why a speedup asked for cannot be given, in words
 
     @property
     def speedup(self) -> float | None:
@@ -47,7 +48,7 @@ class ScoreReport:
                 "ladder": [{"spp": p.spp, "psnr_db": p.psnr_db, "seconds": p.seconds} for p in self.ladder],
                 "equal_quality_spp": self.equal_quality_spp, "extrapolated": self.extrapolated,
                 "seconds_per_spp": self.seconds_per_spp, "candidate_seconds": self.candidate_seconds,
-                "speedup": self.speedup}
+                "speedup": self.speedup, **({"no_speedup": self.no_speedup} if self.no_speedup else {})}
 
 
 def equal_quality_spp(spps, psnrs, target: float) -> tuple[float, bool]:
@@ -119,8 +120,31 @@ def ladder_paths(entries) -> list[Path]:
     return paths
 
 
+def manifest_seconds(path) -> float | None:
+    """The render time the dataset manifest records for ``path`` when it is a file of a dataset item
+    (``DIR/items/ITEM_ID/NAME``; the files themselves carry no timings), else None."""
+    from ..dataset.manifest import read_manifest
+
+    path = Path(path).resolve()
+    item_folder = path.parent
+    dataset = item_folder.parent.parent
+    if item_folder.parent.name != "items" or not (dataset / "manifest.jsonl").is_file():
+        return None
+    for record in read_manifest(dataset):
+        if record.get("id") == item_folder.name:
+            entry = record.get("files", {}).get(path.name)
+            return None if entry is None else entry.get("seconds")
+    return None
+
+
 def score_files(reference_path, candidate_path, *, ladder=(), seconds: float | None = None, exposure: float = 0.0,
                 covered_only: bool = False) -> ScoreReport:
+    """Score one candidate against a reference, and place it on ``ladder`` when given.
+
+    Ladder render times come from each file's ``render_seconds``, or, for the files of a dataset
+    item, from the dataset's manifest. ``report.no_speedup`` says in words why a speedup asked for
+    with ``seconds`` cannot be given.
+    """
     reference, reference_arrays, _ = read_radiance(reference_path)
     candidate, _, _ = read_radiance(candidate_path)
     if candidate.shape != reference.shape:
@@ -136,9 +160,15 @@ def score_files(reference_path, candidate_path, *, ladder=(), seconds: float | N
                 raise UserError(f"{path}: shape {image.shape} differs from the reference's {reference.shape}")
             if "spp" not in meta:
                 raise UserError(f"{path}: meta: no spp recorded; ladder renders must come from tracer")
+            render_seconds = meta.get("render_seconds")
+            if render_seconds is None:
+                render_seconds = manifest_seconds(path)
             points.append(LadderPoint(int(meta["spp"]), score(reference, image, exposure=exposure, mask=mask).psnr_db,
-                                      meta.get("render_seconds")))
+                                      render_seconds))
         add_ladder(report, points, seconds)
+        if seconds is not None and report.seconds_per_spp is None:
+            report.no_speedup = ("no speedup: the ladder renders record no render time (neither in their meta "
+                                 "nor in a dataset manifest beside them)")
     elif seconds is not None:
         raise UserError("--seconds: needs --ladder to turn quality into a sample count")
     return report
