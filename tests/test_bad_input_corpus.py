@@ -15,6 +15,7 @@ from typing import Callable
 
 import numpy as np
 import nrrd
+import numba
 import pytest
 from typer.testing import CliRunner
 
@@ -141,6 +142,22 @@ def plan(text_replace: dict):
     return setup
 
 
+def render_with(*options):
+    def setup(tmp: Path):
+        path = tmp / "scene.toml"
+        path.write_text(SCENE)
+        return ["render", path, "--out", tmp / "out", *options]
+    return setup
+
+
+def former_command(name: str):
+    def setup(tmp: Path):
+        return [name, "--out", tmp / "out"]
+    return setup
+
+
+THREADS = numba.config.NUMBA_NUM_THREADS
+
 CASES = [
     # --- NRRD headers and data -------------------------------------------------------------
     Case("nrrd missing sizes", "NRRD", header_file("NRRD0004\ntype: float\ndimension: 3\nendian: little\nencoding: raw\n"), "error: {tmp}/bad.nrrd: sizes: missing (a field the NRRD format requires)"),
@@ -188,6 +205,15 @@ CASES = [
     Case("scene view misses the volume (warning)", "scene", scene({"target = [0.0, 0.0, 30.0]": "target = [0.0, -240.0, 30.0]"}),
          "warning: {tmp}/scene.toml: camera: the view misses the volume; the render will show only background",
          exit_code=0),
+    Case("render --threads 0", "scene", render_with("--threads", 0), f"error: --threads: must be a whole number from 1 to {THREADS} (the cores numba sees), got 0; leave it out to use them all"),
+    # --- names of an earlier release, refused with their new name (for one release) ---------
+    Case("former key shading", "former name", scene({"spp = 1": 'spp = 1\nshading = "hybrid"'}), 'error: {tmp}/scene.toml: render.shading: is now called scattering; write scattering = "graded" (former names: "phase" -> "medium", "surface" -> "interface", "hybrid" -> "graded")'),
+    Case("former value of scattering", "former name", scene({"spp = 1": 'spp = 1\nscattering = "phase"'}), 'error: {tmp}/scene.toml: render.scattering: "phase" is now called "medium"'),
+    Case("former key surface_gradient", "former name", scene({"spp = 1": "spp = 1\nsurface_gradient = 0.2"}), "error: {tmp}/scene.toml: render.surface_gradient: is now called interface_gradient (same meaning and value)"),
+    Case("former option --sample-offset", "former name", render_with("--sample-offset", 4), "error: --sample-offset is now called --first-sample (same meaning)"),
+    Case("former command merge", "former name", former_command("merge"), "error: `tracer merge` is now called `tracer pool` (same arguments and options)"),
+    Case("former command samples", "former name", former_command("samples"), "error: `tracer samples` is now called `tracer demo-volumes` (same arguments and options)"),
+    Case("former preset ct_bone", "former name", scene({f'path = "{PLUME_TF}"': 'path = "ct_bone.toml"'}), "error: {tmp}/scene.toml: transfer_function.path: {tmp}/ct_bone.toml: file not found; the preset ct_bone.toml is now hu_mineral.toml (same folder, new colours)"),
     # --- outputs, merges, plans ------------------------------------------------------------
     Case("output folder blocked by a file", "output", unwritable_output, "error: {tmp}/blocker/out: cannot create the output folder: {tmp}/blocker is not a folder"),
     Case("pool of overlapping sample ranges", "pool", merge_overlap, "error: {tmp}/b.npz: samples [1, 3) overlap {tmp}/a.npz's [0, 2); pooled renders must cover disjoint sample ranges"),

@@ -154,3 +154,18 @@ def test_environment_image_follows_the_lat_long_convention(tmp_path, root):
     assert toward_y[1] == pytest.approx(width / 4 - 0.5)          # azimuth 90 degrees: a quarter across
     toward_x_then_y = look([math.cos(0.3), math.sin(0.3), 0.0])
     assert toward_x_then_y[1] == pytest.approx(0.3 / (2 * math.pi) * width - 0.5)
+
+
+def test_the_default_camera_is_in_front_of_and_above_the_volume():
+    """README, "Orientation": centre + 3.2 bounding radii toward -y and 1.2 toward +z, looking at the
+    centre with +z up; the scene records the volume's space in its meta."""
+    from tests.helpers import blob_volume
+    from tracer.scene.camera import default_view
+
+    volume = blob_volume()
+    view = default_view(volume)
+    offset = np.subtract(view.position, volume.center) / volume.bounding_radius
+    np.testing.assert_allclose(offset, [0.0, -3.2, 1.2], atol=1e-12)
+    expected = -offset / np.linalg.norm(offset)
+    np.testing.assert_allclose(view.forward, expected, atol=1e-12)
+    assert view.up[2] > 0.9 and abs(np.dot(view.up, view.forward)) < 1e-12

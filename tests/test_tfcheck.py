@@ -67,3 +67,18 @@ def test_report_plot_is_written(tmp_path):
     image = iio.imread(path)
     assert image.shape[0] > 300 and image.shape[1] > 600
     assert [p.name for p in tmp_path.iterdir()] == ["report.png"]
+
+
+def test_a_background_spike_is_clipped_and_the_rest_keeps_its_shape():
+    """90% of the voxels at one value (the zeros around a skull-stripped brain, say) must not flatten
+    the histogram: the spike's bin is clipped to a ceiling near the other bins, nothing else is."""
+    from tracer.optics.check import clipped_histogram
+
+    rng = np.random.default_rng(3)
+    values = np.concatenate([np.zeros(90_000), rng.uniform(10, 100, 10_000)])
+    centres, shares, ceiling, clipped = clipped_histogram(values, 0.0, 100.0, n_bins=100)
+    assert list(clipped) == [0] and shares[0] == pytest.approx(90.0, abs=0.1)
+    rest = shares[10:]
+    assert rest.max() < ceiling < 4 * rest.max()           # 2.5 x the 90th percentile of the occupied bins
+    uniform = clipped_histogram(rng.uniform(0, 1, 10_000), 0.0, 1.0, n_bins=50)
+    assert len(uniform[3]) == 0 and uniform[2] >= uniform[1].max()

@@ -109,3 +109,17 @@ def test_hounsfield_presets_put_air_and_water_at_their_fixed_points(root):
         assert tf.opacity_at(-1000.0) == 0.0, path
         assert tf.opacity_at(0.0) < 0.1, path          # water is nearly transparent in every preset
         assert "from memory" in path.read_text(), path
+
+
+def test_medical_presets_are_marked_and_start_without_a_red_onset(root):
+    """The HU presets are marked for medical data (they carry the caution) and their colour ramps are
+    our own: at the first value with opacity, red exceeds green by less than 0.15 (no dark-red onset)."""
+    for name in ("hu_mineral", "hu_translucent_tissue"):
+        tf = load_transfer_function(root / "transfer_functions" / f"{name}.toml")
+        assert tf.medical and tf.scale == "HU"
+        values = np.linspace(-1000, 3000, 4001)
+        onset = values[np.argmax(tf.opacity_at(values) > 0)]
+        r, g, _ = tf.albedo_at(onset)
+        assert r - g < 0.15 and r > 0.5, (name, onset, r, g)
+    clay = load_transfer_function(root / "transfer_functions" / "figurine_clay.toml")
+    assert not clay.medical

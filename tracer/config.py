@@ -33,6 +33,20 @@ def memory_budget() -> int:
     return int(megabytes * 1024**2)
 
 
+def check_threads(n: int | None) -> None:
+    """Refuse a thread count below 1 or above the cores numba sees (``NUMBA_NUM_THREADS``); None is fine."""
+    if n is None:
+        return
+    import numba
+
+    most = numba.config.NUMBA_NUM_THREADS
+    if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= most:
+        from .errors import UserError
+
+        raise UserError(f"--threads: must be a whole number from 1 to {most} (the cores numba sees), got {n!r}; "
+                        "leave it out to use them all")
+
+
 @contextlib.contextmanager
 def num_threads(n: int | None):
     """Run the body with ``n`` numba threads, then restore the previous count.
@@ -46,12 +60,7 @@ def num_threads(n: int | None):
     if n is None:
         yield
         return
-    most = numba.config.NUMBA_NUM_THREADS
-    if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= most:
-        from .errors import UserError
-
-        raise UserError(f"threads: must be a whole number from 1 to {most} (the cores numba sees), got {n!r}; "
-                        "leave it out to use them all")
+    check_threads(n)
     previous = numba.get_num_threads()
     numba.set_num_threads(n)
     try:

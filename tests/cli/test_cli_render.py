@@ -1,4 +1,4 @@
-"""``tracer render``, ``preview`` and ``merge`` from the command line."""
+"""``tracer render``, ``preview`` and ``pool`` from the command line."""
 
 import json
 
@@ -25,7 +25,7 @@ def test_render_writes_every_format_and_the_sheet(tmp_path, root):
     frame = read_npz(out / "shot.npz")
     assert frame["radiance"].shape == (20, 24, 3)
     assert frame.meta["spp"] == 2 and frame.meta["seed"] == 5 and frame.meta["stopped"] == "spp"
-    assert "2 spp in" in result.stdout
+    assert "reached 2 spp in" in result.stdout
     assert "not diagnosis" not in result.stdout      # an industrial CT of a clay figurine is not a medical scan
 
 

@@ -92,6 +92,8 @@ BAD_PLANS = {
     "spp ladder": (dict(input_spp=(1, 0)), "render.input_spp: expected a list of positive whole numbers"),
     "unknown key": (dict(extra="colour = 3"), "unknown key 'colour'"),
     "chunks with target": (dict(extra_render="reference_chunks = 2\nreference_min_psnr = 30.0"), "reference_chunks"),
+    "former key shading": (dict(extra_render='shading = "surface"'), 'render.shading: is now called scattering; write scattering = "interface"'),
+    "former key surface_gradient": (dict(extra_render="surface_gradient = 0.3"), "render.surface_gradient: is now called interface_gradient"),
 }
 
 
@@ -102,3 +104,15 @@ def test_bad_plan_is_one_line(tmp_path, case):
     with pytest.raises(UserError) as caught:
         load_plan(path)
     assert expected in str(caught.value) and str(path) in str(caught.value)
+
+
+def test_a_plan_is_medical_only_with_a_medical_function_or_a_patient_space(tmp_path):
+    """The demo volumes are in 3D-right-handed space and their functions are not medical; swapping in
+    an HU preset marked medical = true makes the plan medical (it then carries the caution)."""
+    path = write_plan(tmp_path / "a")
+    assert not load_plan(path).medical
+    text = path.read_text().replace("figurine_clay.toml", "hu_mineral.toml")
+    (tmp_path / "b").mkdir()
+    medical = tmp_path / "b" / "plan.toml"
+    medical.write_text(text)
+    assert load_plan(medical).medical

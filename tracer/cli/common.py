@@ -66,6 +66,10 @@ def former_option(name: str, value, new_name: str) -> None:
         raise UserError(f"{name} is now called {new_name} (same meaning)")
 
 
+#: Context of a former command's name: it accepts whatever was passed, to answer with its new name.
+FORMER = {"allow_extra_args": True, "ignore_unknown_options": True}
+
+
 def former_command(old: str, new: str):
     """A hidden command under an earlier release's name that says what it is called now."""
 

@@ -9,13 +9,8 @@ import typer
 
 from rich.markup import escape
 
-from .common import console, error_console, reports_user_errors
+from .common import MEDICAL_CAUTION, console, error_console, reports_user_errors
 
-
-def _cores() -> int:
-    import numba
-
-    return numba.config.NUMBA_NUM_THREADS
 
 
 def register(app: typer.Typer) -> None:
@@ -42,6 +37,7 @@ def dataset(
     """
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
+    from ..config import check_threads
     from ..dataset.cluster import check_scheduler_address
     from ..dataset.plan import load_plan
     from ..dataset.run import build_dataset
@@ -57,9 +53,11 @@ def dataset(
         if threads is not None:
             raise UserError("--threads: an existing cluster's workers keep their own thread count "
                             "(set NUMBA_NUM_THREADS where they start)")
-    if threads is not None and (threads < 1 or (workers is None and threads > _cores())):
-        raise UserError(f"--threads: must be a whole number from 1 to {_cores()} (the cores here), got {threads}")
-    load_plan(plan)
+    if workers is None:
+        check_threads(threads)
+    elif threads is not None and threads < 1:
+        raise UserError(f"--threads: must be at least 1 per worker, got {threads}")
+    parsed = load_plan(plan)
     check_output_folder(out)
     columns = [TextColumn("[bold]items"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(), TextColumn("eta"),
                TimeRemainingColumn()]
@@ -81,6 +79,8 @@ def dataset(
     if summary.uncertified:
         error_console.print(f"[yellow]warning:[/yellow] {len(summary.uncertified)} references missed the plan's "
                             f"target: {escape(', '.join(summary.uncertified[:5]))}")
+    if parsed.medical:
+        console.print(f"[dim]{MEDICAL_CAUTION}[/dim]")
 
 
 @reports_user_errors

@@ -9,7 +9,7 @@ import typer
 
 from rich.markup import escape
 
-from .common import (console, error_console, former_command, former_option, medical_note, reports_user_errors,
+from .common import (FORMER, console, error_console, former_command, former_option, medical_note, reports_user_errors,
                      threads_option)
 
 
@@ -17,7 +17,7 @@ def register(app: typer.Typer) -> None:
     app.command("preview")(preview)
     app.command("render")(render)
     app.command("pool")(pool)
-    app.command("merge", hidden=True)(former_command("merge", "pool"))
+    app.command("merge", hidden=True, context_settings=FORMER)(former_command("merge", "pool"))
 
 
 @reports_user_errors
@@ -51,7 +51,10 @@ def render(
     from ..rendering.passes import render as render_scene
     from ..scene import load_scene
 
+    from ..config import check_threads
+
     former_option("--sample-offset", sample_offset, "--first-sample")
+    check_threads(threads)
     formats = parse_formats(format)
     loaded = load_scene(scene).with_overrides(spp=spp, seed=seed, width=width, height=height)
     name = name or scene.stem
@@ -121,6 +124,9 @@ def preview(
     from ..rendering.preview import preview_scene
     from ..scene import load_scene
 
+    from ..config import check_threads
+
+    check_threads(threads)
     loaded = load_scene(scene).with_overrides(width=width, height=height)
     check_output_folder(out)
     frame, per_spp, predicted = preview_scene(loaded, spp=spp, threads=threads)

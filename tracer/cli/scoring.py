@@ -154,6 +154,9 @@ def denoise(
     from ..outputs.png import write_preview
     from ..outputs.save import check_output_folder
 
+    from ..config import check_threads
+
+    check_threads(threads)
     frame = read_npz(input)
     target = out if out.suffix == ".npz" else out.with_name(out.name + ".npz")
     check_output_folder(target.parent)

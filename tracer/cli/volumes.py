@@ -10,7 +10,7 @@ import typer
 
 from rich.markup import escape
 
-from .common import console, error_console, former_command, medical_note, reports_user_errors
+from .common import FORMER, console, error_console, former_command, medical_note, reports_user_errors
 
 
 def register(app: typer.Typer) -> None:
@@ -20,7 +20,7 @@ def register(app: typer.Typer) -> None:
 
 def register_demo_volumes(app: typer.Typer) -> None:
     app.command("demo-volumes")(demo_volumes)
-    app.command("samples", hidden=True)(former_command("samples", "demo-volumes"))
+    app.command("samples", hidden=True, context_settings=FORMER)(former_command("samples", "demo-volumes"))
 
 
 @reports_user_errors

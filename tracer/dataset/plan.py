@@ -96,6 +96,27 @@ class DatasetPlan:
     raw: dict = dataclasses.field(default_factory=dict, repr=False)
 
     @cached_property
+    def medical(self) -> bool:
+        """Whether the plan renders a medical scan: a transfer function marked ``medical = true``, or a
+        volume whose NRRD header names a patient space (README, "Orientation"). Reads headers only."""
+        from ..optics.transfer import load_transfer_function
+        from ..volumes.orientation import PATIENT_SPACES, normalise_space
+
+        for entry in self.volumes:
+            if any(load_transfer_function(path).medical for path in entry.transfer_functions):
+                return True
+            if entry.path.suffix.lower() in (".nrrd", ".nhdr"):
+                import nrrd
+
+                try:
+                    space = nrrd.read_header(str(entry.path)).get("space")
+                except (OSError, nrrd.NRRDError, ValueError):
+                    continue
+                if normalise_space(space) in PATIENT_SPACES:
+                    return True
+        return False
+
+    @cached_property
     def fingerprint(self) -> str:
         """sha256 of the plan as parsed; a resume must see the same plan."""
         return hashlib.sha256(json.dumps(self.raw, sort_keys=True, default=str).encode()).hexdigest()

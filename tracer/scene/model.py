@@ -134,7 +134,7 @@ class Scene:
     def to_dict(self) -> dict:
         """The scene as parsed, for metadata (the volume by its source, the transfer function in full)."""
         return {
-            "volume": {"path": self.volume.source, "shape": list(self.volume.shape),
+            "volume": {"path": self.volume.source, "shape": list(self.volume.shape), "space": self.volume.space,
                        "origin_mm": self.volume.origin.tolist(), "directions_mm": self.volume.directions.tolist()},
             "transfer_function": self.transfer_function.to_dict(),
             "camera": {"position": list(self.camera.position), "target": list(self.camera.target),
