@@ -95,7 +95,8 @@ def render(
     meta = frame.meta
     if meta["compile_seconds"] >= 0.05:
         console.print(f"compiled kernels in {meta['compile_seconds']:.1f} s (first run only; not in the render time)")
-    line = f"{describe_stop(meta)} in {meta['render_seconds']:.2f} s"
+    seconds = meta["render_seconds"]
+    line = f"{describe_stop(meta)} in " + (f"{seconds:.2f} s" if seconds >= 0.1 else f"{1000 * seconds:.0f} ms")
     if "relative_error" in meta:
         line += f", mean relative error {meta['relative_error']:.4f}"
     console.print(line)
