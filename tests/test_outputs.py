@@ -110,3 +110,19 @@ def test_save_frame_writes_the_asked_formats_and_a_sheet(frame, tmp_path):
 
     assert iio.imread(tmp_path / "shot.png").shape == (10, 12, 3)
     assert iio.imread(tmp_path / "shot.sheet.png").shape[1] > 800
+
+
+def test_a_render_file_of_the_previous_release_reads_with_first_sample(tmp_path):
+    """Files written before the rename carry meta key sample_offset; they read (and pool) as first_sample."""
+    from tests.helpers import blob_scene
+    from tracer.outputs.npz import read_npz, write_npz
+    from tracer.rendering import render as render_scene
+    from tracer.rendering.accumulate import merge_frames
+
+    scene = blob_scene(width=3, height=3, spp=2)
+    old = render_scene(scene, first_sample=2)
+    old.meta["sample_offset"] = old.meta.pop("first_sample")
+    write_npz(tmp_path / "old.npz", old)
+    frame = read_npz(tmp_path / "old.npz")
+    assert frame.meta["first_sample"] == 2 and "sample_offset" not in frame.meta
+    assert merge_frames([render_scene(scene), frame]).spp == 4
