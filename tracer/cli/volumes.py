@@ -5,7 +5,6 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Annotated, Optional
 
-import numpy as np
 import typer
 
 from rich.markup import escape
@@ -70,6 +69,8 @@ def info(
     for axis in axis_directions(loaded):
         step = ", ".join(f"{v:.4g}" for v in axis.step_mm)
         out(f"    {'ijk'[axis.axis]} ({'xyz'[axis.axis]} in the array)  ({step})  -> {axis.toward}", highlight=False)
+    import numpy as np
+
     view = default_view(loaded)
     out(f"  default view camera at ({', '.join(f'{v:.4g}' for v in view.position)}) mm, looking "
         f"{toward(view.forward, loaded.space)}, up {toward(view.up, loaded.space)}; it sees the side of the "
