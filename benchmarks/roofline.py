@@ -44,6 +44,6 @@ def coherent_march(field, bricks, shape, cells, world_to_index, extinction, look
             py = (y - world_to_index[1, 3]) / world_to_index[1, 1]
             pz = (z - world_to_index[2, 3]) / world_to_index[2, 2]
             total += transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, 1.0, 0.0, 0.0,
-                                   np.inf, step, 0.3, 0.0, False, counts, a)
+                                   np.inf, step, np.inf, 0.3, 0.0, False, counts, a)
         out[a] = total
     return out

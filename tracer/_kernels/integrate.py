@@ -169,13 +169,13 @@ def next_segment_after(t0, step, u_offset, j, t_exit):
 
 @njit(**JIT)
 def transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, dx, dy, dz, t_max, step,
-                  u_offset, u_roulette, skip, counts, row):
+                  roulette_depth, u_offset, u_roulette, skip, counts, row):
     """Unbiased transmittance estimate from world point p along unit direction d up to ``t_max`` mm.
 
     Marches steps of ``step`` mm with a random first step, extinction at each step's midpoint,
     stepping over empty macrocells (exact: they contribute zero optical depth); once the
-    transmittance falls below ROULETTE_BELOW, one Russian-roulette draw ends the ray or divides
-    on by the survival probability. With ``skip`` false, empty cells are marched through (for
+    optical depth passes ``roulette_depth`` (ROULETTE_DEPTH: transmittance ROULETTE_BELOW; infinity
+    turns roulette off), one Russian-roulette draw ends the ray or divides on by the survival probability. With ``skip`` false, empty cells are marched through (for
     measurements). ``counts[row, 0]`` gains the field samples taken, ``counts[row, 1]`` those that fell
     in non-empty cells.
     """
@@ -208,7 +208,7 @@ def transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, 
         value = trilinear_bricked(bricks, shape, qx, qy, qz)
         n_samples += 1
         tau += extinction_at(extinction, lookup, value) * (tb - ta)
-        if not rouletted and tau > ROULETTE_DEPTH:
+        if not rouletted and tau > roulette_depth:
             rouletted = True
             if u_roulette >= ROULETTE_SURVIVE:
                 counts[row, 0] += n_samples
@@ -316,8 +316,8 @@ def lobe(weight, g, nx, ny, nz, dx, dy, dz, lx, ly, lz):
 
 @njit(**JIT)
 def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors, env_image,
-                    step, g, weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim, skip, counts,
-                    row):
+                    step, roulette_depth, g, weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim,
+                    skip, counts, row):
     """Single-scattered radiance S at p before the albedo: direct lights plus one environment direction."""
     s0 = 0.0
     s1 = 0.0
@@ -340,7 +340,7 @@ def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, li
             continue
         dim = base_dim + 16 + 2 * light
         t = transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, lx, ly, lz, distance, step,
-                          uniform(seed, pixel, sample, dim), uniform(seed, pixel, sample, dim + 1), skip, counts, row)
+                          roulette_depth, uniform(seed, pixel, sample, dim), uniform(seed, pixel, sample, dim + 1), skip, counts, row)
         scale = f * falloff * t
         s0 += scale * lights[light, 4]
         s1 += scale * lights[light, 5]
@@ -354,7 +354,7 @@ def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, li
     else:
         wx, wy, wz = sample_henyey_greenstein(dx, dy, dz, g, u1, u2)
     t = transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, wx, wy, wz, np.inf, step,
-                      uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4), skip, counts, row)
+                      roulette_depth, uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4), skip, counts, row)
     if t > 0.0:
         e0, e1, e2 = environment_radiance(env_kind, env_colors, env_image, wx, wy, wz)
         s0 += t * e0
@@ -365,8 +365,8 @@ def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, li
 
 @njit(**JIT)
 def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-               background_is_env, scattering, n_events, levels, step, g, gradient_scale, seed, row, col, width, height,
-               sample, skip, acc, counts, scratch):
+               background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, seed, row, col,
+               width, height, sample, skip, acc, counts, scratch):
     """One sample path of pixel (row, col); adds its contribution to ``acc[row, col]``.
 
     ``scratch`` (SCRATCH,) float64 is the row's work space (allocated once per row, not per path):
@@ -466,7 +466,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
         a0, a1, a2 = albedo_at(albedo, lookup, value)
         weight = interface_weight(scattering, gradient_scale, magnitude)
         s0, s1, s2 = scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors,
-                                     env_image, step, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz,
+                                     env_image, step, roulette_depth, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz,
                                      seed, pixel, sample, DIM_EVENT + DIM_EVENT_STRIDE * k, skip, counts, row)
         r0 += a0 * s0
         r1 += a1 * s1
@@ -531,8 +531,8 @@ def row_stride(n_rows):
 
 @njit(**JIT_PARALLEL)
 def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-                background_is_env, scattering, n_events, levels, step, g, gradient_scale, seed, row_start, row_end,
-                sample_start, sample_end, skip, acc, counts, done):
+                background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, seed,
+                row_start, row_end, sample_start, sample_end, skip, acc, counts, done):
     """Add samples [sample_start, sample_end) of rows [row_start, row_end) to ``acc``.
 
     Parameters
@@ -549,6 +549,8 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
         directional lights, position (mm) and intensity for point lights
     env_colors : (3, 3) float64; env_image : (h, w, 3) float32; background : (3,) float64
     levels : (n_levels,) float64 opacity levels of the fixed feature events
+    roulette_depth : float; shadow and environment rays play Russian roulette once their optical depth
+        passes this (ROULETTE_DEPTH); infinity turns roulette off (for measurements)
     acc : (H, W, C) float64 accumulator; each row is written by exactly one iteration, and
         each pixel receives its samples in increasing order, so the sums are bit-identical for
         any thread count or pass split.
@@ -569,6 +571,6 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
         for col in range(width):
             for sample in range(sample_start, sample_end):
                 trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-                           background_is_env, scattering, n_events, levels, step, g, gradient_scale, seed,
-                           row, col, width, height, sample, skip, acc, counts, scratch)
+                           background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth,
+                           seed, row, col, width, height, sample, skip, acc, counts, scratch)
     done[0] = row_end

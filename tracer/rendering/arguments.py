@@ -11,12 +11,15 @@ ENVIRONMENT_CODES = {"constant": 0, "sky": 1, "image": 2}
 LIGHT_CODES = {"directional": 0, "point": 1}
 
 
-def kernel_arguments(scene: Scene, skipping: bool = True) -> tuple:
+def kernel_arguments(scene: Scene, skipping: bool = True, roulette: bool = True) -> tuple:
     """The scene as the plain arrays and codes of :func:`tracer._kernels.integrate.render_rows` (before rows/samples/acc).
 
     The macrocell grid of the current transfer function is built every time (exact: empty cells
-    have zero extinction everywhere); ``skipping`` decides whether rays step over empty cells.
+    have zero extinction everywhere); ``skipping`` decides whether rays step over empty cells;
+    ``roulette`` whether shadow and environment rays play Russian roulette (off only for measurements).
     """
+    from .._kernels.integrate import ROULETTE_DEPTH
+
     volume = scene.volume
     low, high = volume.value_range
     transfer = scene.transfer_function.bake(low, high)
@@ -37,7 +40,7 @@ def kernel_arguments(scene: Scene, skipping: bool = True) -> tuple:
         ENVIRONMENT_CODES[environment.kind], np.asarray(environment.colors, dtype=np.float64),
         np.ascontiguousarray(image, dtype=np.float32), background, environment.background is None,
         SCATTERING_CODES[settings.scattering], settings.events, np.asarray(settings.feature_levels, dtype=np.float64),
-        float(settings.step_mm), float(settings.phase_g), gradient_scale,
+        float(settings.step_mm), float(settings.phase_g), gradient_scale, ROULETTE_DEPTH if roulette else np.inf,
     ), bool(skipping)
 
 

@@ -130,12 +130,12 @@ def spp_cap(settings_spp: int, spp: int | None, targeted: bool) -> int:
 class KernelCall:
     """The path kernel bound to one scene's arrays; counts field samples and times its first load."""
 
-    def __init__(self, scene: Scene, skipping: bool):
+    def __init__(self, scene: Scene, skipping: bool, roulette: bool = True):
         from .._kernels.integrate import render_rows
         from .arguments import kernel_arguments
 
         self.kernel = render_rows
-        self.arguments, self.skip = kernel_arguments(scene, skipping)
+        self.arguments, self.skip = kernel_arguments(scene, skipping, roulette)
         self.seed = scene.settings.seed
         self.counts = np.zeros((scene.camera.image_size[0], 2), np.int64)
         self.done = np.zeros(1, np.int64)
@@ -190,7 +190,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, fir
            threads: int | None = None,
            on_progress: Callable[[RenderProgress], None] | None = None, checkpoint_path=None,
            checkpoint_every: float | None = None, resume: bool = False, pass_seconds: float = 0.4,
-           skipping: bool = True) -> Frame:
+           skipping: bool = True, roulette: bool = True) -> Frame:
     """Path-trace ``scene`` and return its buffers.
 
     Parameters
@@ -218,6 +218,9 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, fir
         Continue from ``checkpoint_path`` (bit-exact with an uninterrupted render).
     skipping : bool
         Step over empty macrocells (exact: the result is bit-identical either way; off only for benchmarks).
+    roulette : bool
+        Russian roulette on shadow and environment rays once their transmittance falls below 0.02
+        (unbiased; off only for measurements: slower, the same expected image).
 
     Returns
     -------
@@ -252,7 +255,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, fir
     if accumulator is None:
         accumulator = Accumulator(height, width, len(settings.feature_levels), first_sample=first_sample)
 
-    call = KernelCall(scene, skipping)
+    call = KernelCall(scene, skipping, roulette)
     planner = PassPlanner(height, pass_seconds)
     stopped = None
     noise = None
