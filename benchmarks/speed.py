@@ -127,7 +127,8 @@ def peak_memory(name: str) -> float:
 def main() -> None:
     import numba
 
-    from tests.helpers import blob_scene
+    from tests.outside.scenes import camera_table, scene
+    from tests.outside.test_oracle_agreement import LIGHTS, SKY, blob_files
     from tests.reference.oracle import Oracle
     from tracer import load_scene
     from tracer.rendering import render
@@ -168,10 +169,14 @@ def main() -> None:
     report.update(start_times())
 
     # oracle against kernel, same tiny scene
-    tiny = blob_scene(width=4, height=4, spp=16)
+    folder = Path(tempfile.mkdtemp(prefix="tracer-oracle-"))
+    volume, transfer = blob_files(folder)
+    tiny_path = scene(folder, volume, transfer, camera_table((20.0, -25.0, 8.0), (0.0, 0.0, 0.0), 22.0, 4, 4), LIGHTS, SKY,
+                      spp=16, scattering="graded", phase_g=0.4, step_mm=0.4, interface_gradient=0.15)
+    tiny = load_scene(tiny_path)
     kernel_seconds, _ = timed(render, tiny, repeat=3)
     start = time.perf_counter()
-    Oracle(tiny).render(16)
+    Oracle(tiny_path).render(16)
     oracle_seconds = time.perf_counter() - start
     report["oracle"] = {"kernel_seconds": kernel_seconds, "oracle_seconds": oracle_seconds,
                         "speed_ratio": oracle_seconds / kernel_seconds}

@@ -107,3 +107,26 @@ def test_no_module_past_600_lines():
     long = {str(path.relative_to(PACKAGE)): n for path in PACKAGE.rglob("*.py")
             if (n := len(path.read_text().splitlines())) > 600}
     assert not long, long
+
+
+def test_outside_references_import_nothing_from_tracer():
+    """tests/reference/ is the outside side of every check (its __init__ says why): not one import of ``tracer``
+    or of another test module that does, also inside function bodies."""
+    folder = Path(__file__).parent / "reference"
+    offenders = []
+    for path in sorted(folder.glob("*.py")):
+        for node in ast.walk(ast.parse(path.read_text())):
+            if isinstance(node, ast.Import):
+                names = [alias.name for alias in node.names]
+            elif isinstance(node, ast.ImportFrom):
+                names = [("." * node.level) + (node.module or "")]
+            else:
+                continue
+            for name in names:
+                allowed_relative = name.startswith(".") and not name.startswith("..")
+                if name.split(".")[0] in ("tracer", "tests") and not name.startswith("tests.reference"):
+                    offenders.append(f"{path.name}: {name}")
+                elif name.startswith(".") and not allowed_relative:
+                    offenders.append(f"{path.name}: {name}")
+    assert not offenders, offenders
+    assert len(list(folder.glob("*.py"))) >= 5

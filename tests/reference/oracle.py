@@ -1,53 +1,109 @@
-"""A slow, plain NumPy implementation of the renderer's estimator, written from the README.
+"""A slow, plain NumPy implementation of the renderer's estimator, written from the README alone.
 
-It shares no code with the numba kernels: its own random numbers (``numpy.random.Generator``),
-its own interpolation (``scipy.ndimage.map_coordinates``-free but written out per axis), the
-transfer function evaluated exactly (not through the baked table), and vectors as NumPy arrays.
-Use it on tiny scenes only: a few thousand paths take seconds.
+It reads the scene file, the transfer function, the NRRD volume (pynrrd) and an environment image (OpenEXR)
+itself, builds camera rays with :class:`tests.reference.camera.Pinhole`, evaluates the transfer function exactly
+(not through a baked table), takes the README's constants from the README's text (:mod:`tests.reference.readme`),
+and draws its random numbers from ``numpy.random.Generator``. It imports nothing from ``tracer``. Use it on tiny
+scenes only: a few thousand paths take seconds.
 
-Estimator (README, "The optical model"): K stratified opacity thresholds per path; ray
-marched with a random offset, extinction piecewise constant at each step's midpoint; event k
-where 1 - T first exceeds u_k; at an event, albedo x (direct light x shadow transmittance x
-lobe + environment along one lobe-sampled direction x transmittance); a stratum without an
-event sees the background; the sample is the mean of the K strata.
+The estimator (README, "The optical model"): K stratified opacity thresholds per path; the ray marched through the
+volume's box with a random first step, extinction constant over each step at its midpoint; event k where 1 - T
+passes threshold k; at an event, albedo x (direct light through a shadow ray x lobe + the environment along one
+lobe-sampled direction through its own shadow ray); a stratum without an event sees the background; the sample is
+the mean of its K strata. Every scene key it needs must be written out in the file (it knows no defaults).
 """
 
 from __future__ import annotations
 
 import math
+import tomllib
+from pathlib import Path
 
 import numpy as np
 
-SCATTERING = {"medium": 0, "interface": 1, "graded": 2}
+from . import readme
+from .camera import Pinhole
+from .files import read_latlong
+
+
+def _resolve(base: Path, path: str) -> Path:
+    path = Path(path)
+    return path if path.is_absolute() else base / path
+
+
+def read_volume(path: Path):
+    """(field float64 (nx, ny, nz), M (3, 3) with the index axes' world steps as columns, origin (3,))."""
+    import nrrd
+
+    data, header = nrrd.read(str(path), index_order="F")
+    directions = np.asarray(header["space directions"], float)      # rows: world step of index axes i, j, k
+    origin = np.asarray(header.get("space origin", np.zeros(3)), float)
+    return data.astype(np.float64), directions.T, origin
+
+
+class TransferFunction:
+    """Piecewise linear in the value, clamped outside the points (README, "Transfer functions")."""
+
+    def __init__(self, table: dict):
+        self.reference_length = float(table.get("reference_length_mm", 1.0))
+        self.opacity_points = np.array([p[0] for p in table["opacity"]], float)
+        self.opacity_values = np.array([p[1] for p in table["opacity"]], float)
+        self.colour_points = np.array([p[0] for p in table["color"]], float)
+        self.colour_values = np.array([p[1] for p in table["color"]], float)
+        self.cap = readme.opacity_cap()
+
+    def sigma(self, value: float) -> float:
+        opacity = min(float(np.interp(value, self.opacity_points, self.opacity_values)), self.cap)
+        return -math.log1p(-opacity) / self.reference_length
+
+    def albedo(self, value: float) -> np.ndarray:
+        return np.array([np.interp(value, self.colour_points, self.colour_values[:, c]) for c in range(3)])
 
 
 class Oracle:
-    def __init__(self, scene):
-        self.scene = scene
-        volume = scene.volume
-        self.field = volume.data.astype(np.float64)
-        self.shape = np.array(volume.shape, dtype=np.float64)
-        self.matrix = volume.directions.T          # world = origin + matrix @ index
+    def __init__(self, scene_path):
+        scene_path = Path(scene_path)
+        base = scene_path.parent
+        scene = tomllib.loads(scene_path.read_text())
+        self.field, self.matrix, self.origin = read_volume(_resolve(base, scene["volume"]["path"]))
         self.inverse = np.linalg.inv(self.matrix)
-        self.origin = volume.origin
-        self.tf = scene.transfer_function
-        self.settings = scene.settings
-        low, high = volume.value_range
-        self.gradient_scale = float(np.mean(volume.spacing)) / (max(high - low, 1e-12) * self.settings.interface_gradient)
+        self.shape = np.array(self.field.shape, float)
+        table = scene["transfer_function"]
+        if "path" in table:
+            path = _resolve(base, table["path"])
+            table = tomllib.loads(path.read_text())
+        self.tf = TransferFunction(table)
+        c = scene["camera"]
+        self.camera = Pinhole(c["position"], c["target"], c["up"], c["fov_deg"], c["width"], c["height"])
+        self.lights = scene.get("lights", [])
+        self.environment = scene.get("environment")
+        self.env_image = None
+        if self.environment is not None and self.environment["kind"] == "image":
+            self.env_image = read_latlong(_resolve(base, self.environment["path"]))
+        r = scene["render"]
+        self.events, self.step, self.g = int(r["events"]), float(r["step_mm"]), float(r["phase_g"])
+        self.scattering = r["scattering"]
+        mean_spacing = float(np.mean(np.linalg.norm(self.matrix, axis=0)))
+        value_range = max(float(self.field.max() - self.field.min()), 1e-12)
+        # "g the gradient magnitude as a fraction of the data range per mean voxel spacing"
+        self.gradient_scale = mean_spacing / (value_range * float(r["interface_gradient"]))
+        self.roulette_below = readme.roulette_below()
+        self.roulette_survival = readme.roulette_survival()
+        self.ground_z = readme.sky_ground_z()
 
     # --- field -------------------------------------------------------------------
-    def value(self, index):
-        """Trilinear interpolation between the 8 voxels around ``index``, written out."""
+    def value(self, index) -> float:
+        """Trilinear between the 8 voxels around ``index`` (clamped to the box), written out per axis."""
         n = self.field.shape
         x, y, z = (min(max(float(index[a]), 0.0), n[a] - 1.0) for a in range(3))
         i, j, k = min(int(x), n[0] - 2), min(int(y), n[1] - 2), min(int(z), n[2] - 2)
         fx, fy, fz = x - i, y - j, z - k
-        c = self.field[i:i + 2, j:j + 2, k:k + 2].tolist()
-        along_x = [[c[0][b][e] * (1 - fx) + c[1][b][e] * fx for e in (0, 1)] for b in (0, 1)]
-        along_y = [along_x[0][e] * (1 - fy) + along_x[1][e] * fy for e in (0, 1)]
-        return along_y[0] * (1 - fz) + along_y[1] * fz
+        c = self.field[i:i + 2, j:j + 2, k:k + 2]
+        along_x = c[0] * (1 - fx) + c[1] * fx
+        along_y = along_x[0] * (1 - fy) + along_x[1] * fy
+        return float(along_y[0] * (1 - fz) + along_y[1] * fz)
 
-    def gradient_world(self, index):
+    def gradient_world(self, index) -> np.ndarray:
         g = np.zeros(3)
         for axis in range(3):
             step = np.zeros(3)
@@ -56,9 +112,6 @@ class Oracle:
             minus = np.maximum(index - step, 0.0)
             g[axis] = (self.value(plus) - self.value(minus)) / (plus[axis] - minus[axis])
         return self.inverse.T @ g
-
-    def sigma(self, value):
-        return float(self.tf.extinction_at(value))
 
     # --- geometry ----------------------------------------------------------------
     def to_index(self, p):
@@ -78,46 +131,62 @@ class Oracle:
             t0, t1 = max(t0, min(a, b)), min(t1, max(a, b))
         return t0, t1
 
-    def segments(self, p, d, t_max, offset):
-        """Yield (t_start, t_end, sigma) of the march from p along d."""
+    def segments(self, p, d, t_max, u):
+        """(t_start, t_end, sigma) of the march from p along d: a first step u x step, then whole steps."""
         t0, t1 = self.interval(p, d)
         t1 = min(t1, t_max)
-        step = self.settings.step_mm
-        a, b = t0, t0 + offset * step
+        a, b = t0, t0 + u * self.step
         while a < t1:
             b = min(b, t1)
-            middle = p + 0.5 * (a + b) * d
-            yield a, b, self.sigma(self.value(self.to_index(middle)))
-            a, b = b, b + step
+            yield a, b, self.tf.sigma(self.value(self.to_index(p + 0.5 * (a + b) * d)))
+            a, b = b, b + self.step
 
-    def transmittance(self, p, d, t_max, rng):
-        tau = 0.0
-        weight = 1.0
-        rouletted = False
-        u_roulette = rng.random()
-        for a, b, s in self.segments(p, d, t_max, rng.random()):
+    def transmittance(self, p, d, t_max, rng) -> float:
+        tau, weight, played = 0.0, 1.0, False
+        u_offset, u_roulette = rng.random(2)
+        for a, b, s in self.segments(p, d, t_max, u_offset):
             tau += s * (b - a)
-            if not rouletted and math.exp(-tau) < 0.02:
-                rouletted = True
-                if u_roulette >= 0.25:
+            if not played and math.exp(-tau) < self.roulette_below:
+                played = True
+                if u_roulette >= self.roulette_survival:
                     return 0.0
-                weight = 4.0
+                weight = 1.0 / self.roulette_survival
         return weight * math.exp(-tau)
 
-    # --- lighting ----------------------------------------------------------------
-    def environment(self, d):
-        env = self.scene.environment
-        colors = np.asarray(env.colors, dtype=np.float64)
-        if env.kind == "constant":
-            return colors[0]
-        if env.kind == "sky":
-            z = d[2]
+    # --- light ---------------------------------------------------------------------
+    def environment_radiance(self, d) -> np.ndarray:
+        env = self.environment
+        if env is None:
+            return np.zeros(3)
+        if env["kind"] == "constant":
+            return np.asarray(env["radiance"], float)
+        if env["kind"] == "sky":
+            zenith, horizon, ground = (np.asarray(env[k], float) for k in ("zenith", "horizon", "ground"))
+            z = float(np.clip(d[2], -1, 1))
             if z >= 0:
                 s = math.sqrt(z)
-                return colors[1] * (1 - s) + colors[0] * s
-            s = min(1.0, -z * 8.0)
-            return colors[1] * (1 - s) + colors[2] * s
-        raise NotImplementedError("the oracle covers constant and sky environments")
+                return horizon * (1 - s) + zenith * s
+            s = min(1.0, z / self.ground_z)
+            return horizon * (1 - s) + ground * s
+        image = self.env_image
+        h, w = image.shape[:2]
+        polar = math.acos(float(np.clip(d[2], -1, 1)))
+        azimuth = math.atan2(d[1], d[0]) % (2 * math.pi)
+        row = polar / math.pi * h - 0.5                   # texel centres at (r + 0.5) / h x 180 degrees
+        col = azimuth / (2 * math.pi) * w - 0.5
+        r0, c0 = math.floor(row), math.floor(col)
+        fr, fc = row - r0, col - c0
+        total = np.zeros(3)
+        for rr, wr in ((r0, 1 - fr), (r0 + 1, fr)):
+            for cc, wc in ((c0, 1 - fc), (c0 + 1, fc)):
+                total += wr * wc * image[min(max(rr, 0), h - 1), cc % w]
+        return total
+
+    def background(self, d) -> np.ndarray:
+        if self.environment is None:
+            return np.zeros(3)
+        background = self.environment.get("background", "environment")
+        return self.environment_radiance(d) if background == "environment" else np.asarray(background, float)
 
     @staticmethod
     def hg(cos_theta, g):
@@ -129,91 +198,84 @@ class Oracle:
         t = np.cross(axis, helper)
         t /= np.linalg.norm(t)
         b = np.cross(axis, t)
-        sin_theta = math.sqrt(max(0.0, 1 - cos_theta**2))
+        sin_theta = math.sqrt(max(0.0, 1 - cos_theta ** 2))
         return t * math.cos(phi) * sin_theta + b * math.sin(phi) * sin_theta + axis * cos_theta
 
-    def shade(self, x, d, rng):
+    def sample_hg(self, d, rng):
+        """A direction around d distributed as Henyey-Greenstein, by inverting its CDF in the cosine."""
+        u1, u2 = rng.random(2)
+        g = self.g
+        if abs(g) < 1e-3:
+            c = 1 - 2 * u1
+        else:
+            c = (1 + g * g - ((1 - g * g) / (1 - g + 2 * g * u1)) ** 2) / (2 * g)
+        return self.around(d, float(np.clip(c, -1, 1)), 2 * math.pi * u2)
+
+    def shade(self, x, d, rng) -> np.ndarray:
         index = self.to_index(x)
         value = self.value(index)
-        albedo = self.tf.albedo_at(value)
         gradient = self.gradient_world(index)
-        magnitude = np.linalg.norm(gradient)
+        magnitude = float(np.linalg.norm(gradient))
         n = -gradient / magnitude if magnitude > 0 else -d
         if n @ d > 0:
             n = -n
-        scattering = self.settings.scattering
-        weight = (0.0 if scattering == "medium" else 1.0 if scattering == "interface"
-                  else 1 - math.exp(-magnitude * self.gradient_scale))
-        g = self.settings.phase_g
+        weight = {"medium": 0.0, "interface": 1.0}.get(self.scattering)
+        if weight is None:
+            weight = 1 - math.exp(-magnitude * self.gradient_scale)
 
         def lobe(w):
-            return weight * max(0.0, n @ w) / math.pi + (1 - weight) * self.hg(d @ w, g)
+            return weight * max(0.0, n @ w) / math.pi + (1 - weight) * self.hg(float(d @ w), self.g)
 
         total = np.zeros(3)
-        for light in self.scene.lights:
-            if light.kind == "directional":
-                w, distance, falloff = np.array(light.vector), math.inf, 1.0
+        for light in self.lights:
+            if light["kind"] == "directional":
+                w = np.asarray(light["toward"], float)
+                w, distance, power = w / np.linalg.norm(w), math.inf, np.asarray(light["irradiance"], float)
             else:
-                w = np.array(light.vector) - x
-                distance = np.linalg.norm(w)
-                w, falloff = w / distance, 1.0 / distance**2
+                w = np.asarray(light["position"], float) - x
+                distance = float(np.linalg.norm(w))
+                w, power = w / distance, np.asarray(light["intensity"], float) / distance ** 2
             f = lobe(w)
             if f > 0:
-                total += np.array(light.power) * falloff * f * self.transmittance(x, w, distance, rng)
-        u_lobe, u1, u2 = rng.random(3)
-        if u_lobe < weight:
-            w = self.around(n, math.sqrt(1 - u1), 2 * math.pi * u2)
+                total += power * f * self.transmittance(x, w, distance, rng)
+        if rng.random() < weight:
+            u1, u2 = rng.random(2)
+            w = self.around(n, math.sqrt(1 - u1), 2 * math.pi * u2)          # cosine-weighted about n
         else:
-            if abs(g) < 1e-3:
-                c = 1 - 2 * u1
-            else:
-                c = (1 + g * g - ((1 - g * g) / (1 - g + 2 * g * u1)) ** 2) / (2 * g)
-            w = self.around(d, c, 2 * math.pi * u2)
-        total += self.environment(w) * self.transmittance(x, w, math.inf, rng)
-        return albedo * total
+            w = self.sample_hg(d, rng)
+        total += self.environment_radiance(w) * self.transmittance(x, w, math.inf, rng)
+        return self.tf.albedo(value) * total
 
-    # --- the estimator -----------------------------------------------------------
+    # --- the estimator -------------------------------------------------------------
     def pixel_samples(self, row, col, n_samples, rng):
         """(n_samples, 3) radiance samples and (n_samples,) alpha samples of one pixel."""
-        camera = self.scene.camera
-        position = np.asarray(camera.position, dtype=np.float64)
-        forward, right, up = camera.frame()
-        half_h = math.tan(math.radians(camera.fov_deg) / 2)
-        half_w = half_h * camera.width / camera.height
-        background = self.scene.environment.background
-        K = self.settings.events
+        K = self.events
         radiance = np.zeros((n_samples, 3))
         alpha = np.zeros(n_samples)
+        p = self.camera.position
         for s in range(n_samples):
-            jx, jy = rng.random(2)
-            sx = (col + jx) / camera.width * 2 - 1
-            sy = 1 - (row + jy) / camera.height * 2
-            d = forward + sx * half_w * right + sy * half_h * up
-            d /= np.linalg.norm(d)
-            bg = self.environment(d) if background is None else np.asarray(background)
+            jr, jc = rng.random(2)
+            d = self.camera.rays(np.array(row), np.array(col), jr, jc)
             targets = [-math.log1p(-(k + rng.random()) / K) for k in range(K)]
-            events = []
-            tau = 0.0
-            for a, b, sigma in self.segments(position, d, math.inf, rng.random()):
+            events, tau = [], 0.0
+            for a, b, sigma in self.segments(p, d, math.inf, rng.random()):
                 while len(events) < K and tau + sigma * (b - a) >= targets[len(events)]:
                     events.append(a + (targets[len(events)] - tau) / sigma)
                 tau += sigma * (b - a)
-            alpha[s] = 1 - math.exp(-tau)
+            alpha[s] = -math.expm1(-tau)
             total = np.zeros(3)
             for k in range(K):
-                total += self.shade(position + events[k] * d, d, rng) if k < len(events) else bg
+                total += self.shade(p + events[k] * d, d, rng) if k < len(events) else self.background(d)
             radiance[s] = total / K
         return radiance, alpha
 
     def render(self, n_samples, seed=0):
         """Per-pixel mean radiance (H, W, 3), variance of that mean, and mean alpha (H, W)."""
-        camera = self.scene.camera
+        h, w = self.camera.height, self.camera.width
         rng = np.random.default_rng(seed)
-        mean = np.zeros((camera.height, camera.width, 3))
-        variance = np.zeros_like(mean)
-        alpha = np.zeros((camera.height, camera.width))
-        for row in range(camera.height):
-            for col in range(camera.width):
+        mean, variance, alpha = np.zeros((h, w, 3)), np.zeros((h, w, 3)), np.zeros((h, w))
+        for row in range(h):
+            for col in range(w):
                 samples, alphas = self.pixel_samples(row, col, n_samples, rng)
                 mean[row, col] = samples.mean(axis=0)
                 variance[row, col] = samples.var(axis=0, ddof=1) / n_samples
