@@ -59,3 +59,22 @@ def example_scene(folder: Path, root: Path, name: str, extra: str = "") -> Path:
     path = Path(folder) / f"{name}.toml"
     path.write_text(text + extra)
     return path
+
+
+#: Buffers that are plain means of per-sample values: pooling reproduces them to float32 rounding.
+MEAN_BUFFERS = ("radiance", "alpha", "albedo", "event1_depth", "event2_depth", "event1_hit", "event2_hit")
+
+
+def assert_pools_to_the_whole(merged, whole) -> None:
+    """README: renders of one seed over disjoint sample ranges pool into the render of their union to float32
+    rounding. The float64 sums are rebuilt from the files' float32 means (mean x n), so a mean buffer may differ by
+    one unit in the last place; buffers formed from differences (the variance, components of averaged normals and
+    positions) by float32 rounding of their largest value: 2e-6 of it."""
+    for key in whole.buffers:
+        a = np.ascontiguousarray(merged[key], np.float32)
+        b = np.ascontiguousarray(whole[key], np.float32)
+        if key in MEAN_BUFFERS:
+            ulps = np.abs(a.view(np.int32).astype(np.int64) - b.view(np.int32).astype(np.int64))
+            assert ulps.max() <= 1, (key, ulps.max())
+        scale = float(np.abs(b).max())
+        assert np.abs(a.astype(np.float64) - b).max() <= 2e-6 * scale, key

@@ -16,7 +16,7 @@ from tracer.outputs.png import srgb_encode
 from tracer.outputs.save import save_frame
 from tracer.rendering import render
 
-from .helpers import blob_scene
+from .helpers import assert_pools_to_the_whole, blob_scene
 
 CONTRACT_EXR_CHANNELS = (
     ["R", "G", "B", "A"] + [f"variance.{c}" for c in "RGB"] + [f"albedo.{c}" for c in "RGB"]
@@ -86,8 +86,7 @@ def test_merge_of_disjoint_ranges_equals_one_render():
     parts = [render(scene, spp=5), render(scene, spp=4, first_sample=5), render(scene, spp=3, first_sample=9)]
     merged = merge_frames(parts)
     assert merged.spp == 12 and merged.meta["first_sample"] == 0
-    for key in whole.buffers:
-        np.testing.assert_allclose(merged[key], whole[key], rtol=2e-5, atol=2e-7, err_msg=key)
+    assert_pools_to_the_whole(merged, whole)
 
 
 def test_merge_refuses_overlap_other_seed_and_other_scene():

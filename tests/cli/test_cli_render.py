@@ -6,7 +6,7 @@ import numpy as np
 
 from tracer.outputs.npz import read_npz
 
-from ..helpers import example_scene
+from ..helpers import assert_pools_to_the_whole, example_scene
 
 from .cli_helpers import assert_user_error, invoke
 
@@ -50,8 +50,7 @@ def test_render_sample_ranges_merge_into_the_whole(tmp_path, root):
     assert result.exit_code == 0, result.output
     merged, whole = read_npz(out / "merged.npz"), read_npz(out / "whole.npz")
     assert merged.spp == 6
-    for key in whole.buffers:
-        np.testing.assert_allclose(merged[key], whole[key], rtol=2e-5, atol=2e-7, err_msg=key)
+    assert_pools_to_the_whole(merged, whole)
     overlapping = invoke("pool", out / "a.npz", out / "whole.npz", "--out", out / "bad")
     assert_user_error(overlapping, "overlap")
     assert not (out / "bad.npz").exists()

@@ -25,7 +25,7 @@ def render(
     scene: Annotated[Path, typer.Argument(help="Scene TOML file.")],
     spp: Annotated[Optional[int], typer.Option(help="Samples per pixel (the cap when --target-error is given).")] = None,
     seed: Annotated[Optional[int], typer.Option(help="Seed of the counter-based generator.")] = None,
-    first_sample: Annotated[int, typer.Option(min=0, help="Index of the first sample; renders of one seed over disjoint ranges pool exactly (`tracer pool`).")] = 0,
+    first_sample: Annotated[int, typer.Option(min=0, help="Index of the first sample; renders of one seed over disjoint ranges pool (`tracer pool`) into the render of their union, to float32 rounding.")] = 0,
     out: Annotated[Path, typer.Option("--out", help="Output folder.")] = Path("renders"),
     name: Annotated[Optional[str], typer.Option(help="Base name of the files (default: the scene's file name).")] = None,
     format: Annotated[str, typer.Option("--format", help="Comma-separated: npz (always written), exr, png.")] = "npz,png",
