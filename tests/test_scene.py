@@ -54,9 +54,17 @@ def scene_file(tmp_path, root, extra_camera="", extra_render="", replace=None, a
 @pytest.mark.parametrize("name", ["figurine", "lattice", "plume"])
 def test_examples_load_and_render(root, name):
     scene = load_scene(root / "examples" / f"{name}.toml").with_overrides(width=16, height=16)
-    frame = render(scene, spp=1)
-    assert frame["event1_hit"].mean() > 0.05
+    spp = 8
+    frame = render(scene, spp=spp)
+    assert frame["event1_hit"].mean() > 0.05            # the example's camera sees its volume
     assert np.isfinite(frame["radiance"]).all()
+    # with K = 2 stratified thresholds (README, "The optical model"), event k exists when alpha passes threshold k,
+    # so E[hit1 + hit2] = 2 alpha exactly: P(u1 < a) + P(u2 < a) = min(1, 2a) + max(0, 2a - 1) = 2a. Per sample the
+    # sum of the two hits has variance at most 1/2, so the image mean lies within 4 standard errors of 2 x alpha
+    assert scene.settings.events == 2
+    hits = (frame["event1_hit"] + frame["event2_hit"]).astype(float)
+    standard_error = np.sqrt(0.5 / spp / hits.size)
+    assert abs(hits.mean() - 2 * frame["alpha"].astype(float).mean()) < 4 * standard_error
 
 
 def test_overrides_and_defaults(root, tmp_path):

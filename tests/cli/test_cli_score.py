@@ -3,6 +3,11 @@
 import csv
 import json
 
+import numpy as np
+from skimage.metrics import peak_signal_noise_ratio
+
+import pytest
+
 from tests.dataset.plans import write_plan
 from tracer.dataset.manifest import read_manifest
 from tracer.dataset.run import build_dataset
@@ -29,8 +34,30 @@ def test_render_denoise_and_score_round_trip(tmp_path, root):
     assert result.exit_code == 0, result.output
     assert "PSNR" in result.stdout and "equal quality" in result.stdout and "speedup" in result.stdout
     report = json.loads((tmp_path / "s.json").read_text())
-    assert report["equal_quality_spp"] > 1 and report["speedup"] > 0
+    # the figures recomputed here from the README's definitions: PSNR by skimage on the display-referred image
+    # (sRGB curve of IEC 61966-2-1 written out, exposure 0), the candidate placed on the ladder's PSNR-against-
+    # log2(spp) line between its neighbours, the speedup as that many spp's render time over the candidate's
+    reference = display(read_npz(out / "ref.npz")["radiance"])
+    psnr = peak_signal_noise_ratio(reference, display(denoised["radiance"]), data_range=1.0)
+    assert report["scores"]["psnr_db"] == pytest.approx(psnr, abs=1e-9)
+    ladder_psnr = [peak_signal_noise_ratio(reference, display(read_npz(out / f"s{spp}.npz")["radiance"]), data_range=1.0)
+                   for spp in (1, 2, 4, 8)]
+    assert ladder_psnr[0] < psnr, "the filtered 1-spp image must beat the 1-spp render, or the placement is moot"
+    k = next((k for k in range(3) if ladder_psnr[k] <= psnr <= ladder_psnr[k + 1]), None)
+    if k is not None:
+        log2_spp = k + (psnr - ladder_psnr[k]) / (ladder_psnr[k + 1] - ladder_psnr[k])
+    else:       # beyond the top of the ladder: the line through its last two points, extended (README)
+        assert report["extrapolated"]
+        log2_spp = 3 + (psnr - ladder_psnr[3]) / (ladder_psnr[3] - ladder_psnr[2])
+    assert report["equal_quality_spp"] == pytest.approx(2 ** log2_spp, rel=1e-9)
+    seconds = [read_npz(out / f"s{spp}.npz").meta["render_seconds"] for spp in (1, 2, 4, 8)]
+    assert report["speedup"] == pytest.approx(report["equal_quality_spp"] * sum(seconds) / 15 / 0.05, rel=1e-9)
     assert (tmp_path / "s.png").stat().st_size > 10_000
+
+
+def display(radiance):
+    x = np.clip(np.asarray(radiance, np.float64), 0, 1)
+    return np.where(x <= 0.0031308, 12.92 * x, 1.055 * x ** (1 / 2.4) - 0.055)
 
 
 def test_score_errors_are_one_line(tmp_path):
@@ -52,6 +79,10 @@ def test_score_dataset_writes_a_table_and_csv(tmp_path):
         rows = list(csv.DictReader(handle))
     assert sum(row["kind"] == "item" for row in rows) == 4
     assert any(row["kind"] == "split" and row["split"] == "all" for row in rows)
-    assert all(float(row["psnr_db"]) > 10 for row in rows if row["kind"] == "item")
+    for row in (row for row in rows if row["kind"] == "item"):
+        reference = display(read_npz(tmp_path / "ds" / "items" / row["id"] / "reference.npz")["radiance"])
+        prediction = display(read_npz(predictions / f"{row['id']}.npz")["radiance"])
+        expected = peak_signal_noise_ratio(reference, prediction, data_range=1.0)       # skimage, README definition
+        assert float(row["psnr_db"]) == pytest.approx(expected, abs=5e-5)      # the CSV keeps 4 decimals
     missing = invoke("score-dataset", tmp_path / "ds", "--predictions", tmp_path / "nothing")
     assert_user_error(missing, "prediction folder not found")
