@@ -12,13 +12,15 @@ F(1, n - 1) law for Gaussian samples, whose mean is (n - 1) / (n - 3) (3 at n = 
 heavier still; it measures the estimator of the variance's reciprocal, not the calibration.
 """
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
 import tracer
-from tests.conftest import ROOT
 from tests.helpers import example_scene
 
+ROOT = Path(__file__).resolve().parents[2]
 CONVERGED_SPP = 1024
 SIZE = 48
 
