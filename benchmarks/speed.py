@@ -127,7 +127,8 @@ def peak_memory(name: str) -> float:
 def main() -> None:
     import numba
 
-    from tests.outside.scenes import camera_table, scene
+    from tests.outside.scenes import camera_table
+    from tests.outside.scenes import scene as scene_file
     from tests.outside.test_oracle_agreement import LIGHTS, SKY, blob_files
     from tests.reference.oracle import Oracle
     from tracer import load_scene
@@ -171,8 +172,9 @@ def main() -> None:
     # oracle against kernel, same tiny scene
     folder = Path(tempfile.mkdtemp(prefix="tracer-oracle-"))
     volume, transfer = blob_files(folder)
-    tiny_path = scene(folder, volume, transfer, camera_table((20.0, -25.0, 8.0), (0.0, 0.0, 0.0), 22.0, 4, 4), LIGHTS, SKY,
-                      spp=16, scattering="graded", phase_g=0.4, step_mm=0.4, interface_gradient=0.15)
+    tiny_camera = camera_table((20.0, -25.0, 8.0), (0.0, 0.0, 0.0), 22.0, 4, 4)
+    tiny_path = scene_file(folder, volume, transfer, tiny_camera, LIGHTS, SKY, spp=16, scattering="graded", phase_g=0.4,
+                           step_mm=0.4, interface_gradient=0.15)
     tiny = load_scene(tiny_path)
     kernel_seconds, _ = timed(render, tiny, repeat=3)
     start = time.perf_counter()
