@@ -32,7 +32,7 @@ VIEW_POLAR, LIGHT_POLAR = math.radians(50.0), math.radians(65.0)
 TARGET = np.array([20.0, 20.0, 10.0])          # centre of the top face
 
 
-def slab(tmp_path, scattering, g):
+def slab(tmp_path, scattering, g, step_mm=0.25, seed=5):
     depth = np.linspace(10.0, 0.0, 21)         # field value = depth below the top face z = 10 mm
     field = np.broadcast_to(depth, (21, 21, 21)).astype(np.float32)
     volume = write_volume(tmp_path / "slab.nrrd", field, np.diag([2.0, 2.0, 0.5]), (0.0, 0.0, 0.0))
@@ -41,8 +41,8 @@ def slab(tmp_path, scattering, g):
     toward = [math.sin(LIGHT_POLAR), 0.0, math.cos(LIGHT_POLAR)]
     camera = camera_table(TARGET - 60 * d, TARGET, 1.0, 8, 8)
     path = scene(tmp_path, volume, transfer, camera, [{"kind": "directional", "toward": toward, "irradiance": [1.0] * 3}],
-                 spp=4096, scattering=scattering, phase_g=g, step_mm=0.25)
-    return tracer.render(path, seed=5), d, np.array(toward)
+                 spp=4096, scattering=scattering, phase_g=g, step_mm=step_mm)
+    return tracer.render(path, seed=seed), d, np.array(toward)
 
 
 @pytest.mark.parametrize("g", [0.0, 0.6, -0.4])
