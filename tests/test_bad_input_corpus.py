@@ -187,6 +187,8 @@ CASES = [
     Case("tf unknown key", "transfer function", text_file(TF + "gloss = 1\n", "tf.toml", tf_check), "error: {tmp}/tf.toml: unknown key 'gloss' in top level"),
     Case("tf opacity above 1", "transfer function", text_file(TF.replace("0.5]]", "1.5]]"), "tf.toml", tf_check), "error: {tmp}/tf.toml: opacity[1] opacity: entries must lie in [0.0, 1.0], got [1.5]"),
     Case("tf colour below 0", "transfer function", text_file(TF.replace("[0.5, 0.5, 0.5]", "[0.5, -0.1, 0.5]"), "tf.toml", tf_check), "error: {tmp}/tf.toml: color[0] colour: entries must lie in [0.0, 1.0], got [0.5, -0.1, 0.5]"),
+    Case("tf negative emission", "transfer function", text_file(TF + "emission = [[0.0, [1.0, -2.0, 0.0]]]\n", "tf.toml", tf_check), "error: {tmp}/tf.toml: emission[0] emission: entries must be >= 0.0, got [1.0, -2.0, 0.0]"),
+    Case("tf negative emission scale", "transfer function", text_file(TF + "emission = [[0.0, [1.0, 2.0, 0.0]]]\nemission_scale = -1\n", "tf.toml", tf_check), "error: {tmp}/tf.toml: emission_scale: must be >= 0.0, got -1"),
     Case("tf decreasing values", "transfer function", text_file(TF.replace("[1.0, 0.5]", "[-1.0, 0.5]"), "tf.toml", tf_check), "error: {tmp}/tf.toml: opacity[1]: values must increase, but -1.0 follows 0.0"),
     Case("tf wrong type", "transfer function", text_file(TF.replace("opacity = [[0.0, 0.0], [1.0, 0.5]]", 'opacity = "high"'), "tf.toml", tf_check), "error: {tmp}/tf.toml: opacity: expected a list of [value, ...] control points"),
     # --- scenes ----------------------------------------------------------------------------

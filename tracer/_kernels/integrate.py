@@ -373,7 +373,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
     event thresholds, level thresholds, event distances, level distances.
     """
     _field, world_to_index, _index_to_world, gradient_to_world, bricks, shape = volume
-    albedo, extinction, lookup = transfer
+    albedo, extinction, lookup, emission, emitting = transfer
     pixel = row * width + col
     # camera ray (box filter over the pixel's square)
     sx = (col + uniform(seed, pixel, sample, DIM_JITTER)) / width * 2.0 - 1.0
@@ -411,6 +411,9 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
     tau = 0.0
     next_event = 0
     next_level = 0
+    glow0 = 0.0
+    glow1 = 0.0
+    glow2 = 0.0
     if t1 > t0:
         u_offset = uniform(seed, pixel, sample, DIM_OFFSET)
         n_samples = 0
@@ -442,6 +445,15 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
             while next_level < n_levels and tau + dtau >= level_targets[next_level]:
                 level_t[next_level] = ta + (level_targets[next_level] - tau) / sigma
                 next_level += 1
+            if emitting and sigma > 0.0:
+                # absorption-emission (Max 1995): int T sigma_a L_e dt over the step, sigma_a = sigma (1 - albedo),
+                # exact for the step's constant extinction
+                weight = math.exp(-tau) * -math.expm1(-dtau)
+                l0, l1, l2 = albedo_at(emission, lookup, value)
+                a0, a1, a2 = albedo_at(albedo, lookup, value)
+                glow0 += weight * (1.0 - a0) * l0
+                glow1 += weight * (1.0 - a1) * l1
+                glow2 += weight * (1.0 - a2) * l2
             tau += dtau
             j += 1
         counts[row, 0] += n_samples
@@ -502,9 +514,9 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
         acc[row, col, block + 5] += ny
         acc[row, col, block + 6] += nz
         acc[row, col, block + 7] += t
-    r0 /= n_events
-    r1 /= n_events
-    r2 /= n_events
+    r0 = r0 / n_events + glow0
+    r1 = r1 / n_events + glow1
+    r2 = r2 / n_events + glow2
     acc[row, col, 0] += r0
     acc[row, col, 1] += r1
     acc[row, col, 2] += r2
@@ -540,7 +552,8 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
     volume : VolumeArrays (field (nx, ny, nz) float32; world_to_index (3, 4); index_to_world (3, 4);
         gradient_to_world (3, 3) float64; bricks (gx, gy, gz, 9, 9, 9) float32 the same field bricked;
         shape (3,) int64)
-    transfer : TransferArrays (albedo (n, 3) float32; extinction (n,) float32 per mm; lookup (2,) float64)
+    transfer : TransferArrays (albedo (n, 3) float32; extinction (n,) float32 per mm; lookup (2,) float64;
+        emission (n, 3) float32; emitting bool: whether the march collects emission at all)
     cells : (cx, cy, cz) float32 macrocell maxima from :func:`build_macrocells`
     skip : bool; step over empty cells (exact); false marches through them (for measurements)
     camera : (4, 3) float64 rows: position (mm), forward (unit), right and up scaled by the

@@ -139,7 +139,9 @@ def check_vector(value, where: str, *, length=3, low=None, high=None) -> tuple[f
         if isinstance(item, bool) or not isinstance(item, (int, float)) or not math.isfinite(item):
             raise UserError(f"{where}: expected a list of {length} finite numbers, got {value!r}")
         if (low is not None and item < low) or (high is not None and item > high):
-            raise UserError(f"{where}: entries must lie in [{low}, {high}], got {value!r}")
+            bounds = f"must be >= {low}" if high is None else (f"must be <= {high}" if low is None
+                                                                   else f"must lie in [{low}, {high}]")
+            raise UserError(f"{where}: entries {bounds}, got {value!r}")
         out.append(float(item))
     return tuple(out)
 

@@ -27,12 +27,15 @@ class TransferArrays(NamedTuple):
     """What kernels see of a transfer function.
 
     albedo : (n, 3) float32 linear RGB;  extinction : (n,) float32 per mm;
-    lookup : (2,) float64 ``[low, entries per unit value]``; entry ``e`` holds value ``low + e / lookup[1]``.
+    lookup : (2,) float64 ``[low, entries per unit value]``; entry ``e`` holds value ``low + e / lookup[1]``;
+    emission : (n, 3) float32 emitted radiance (linear RGB, scale applied); emitting : whether any entry is above 0.
     """
 
     albedo: np.ndarray
     extinction: np.ndarray
     lookup: np.ndarray
+    emission: np.ndarray
+    emitting: bool
 
 
 @dataclass(frozen=True, eq=False)
@@ -51,6 +54,9 @@ class TransferFunction:
         ``scale`` is ``"HU"`` for presets on the Hounsfield scale, ``"raw"`` otherwise.
     medical : bool
         Made for medical scans: renders with it carry the medical caution (README).
+    emission_values, emissions : (k,) and (k, 3) arrays, optional
+        Increasing scalar values and the emitted radiance (linear RGB, >= 0) at each, times ``emission_scale``;
+        none: the medium does not glow.
     """
 
     opacity_values: np.ndarray
@@ -63,6 +69,9 @@ class TransferFunction:
     notes: str = ""
     source: str = field(default="<inline>")
     medical: bool = False
+    emission_values: np.ndarray | None = None
+    emissions: np.ndarray | None = None
+    emission_scale: float = 1.0
 
     def opacity_at(self, values) -> np.ndarray:
         """Opacity per reference length at ``values`` (piecewise linear, clamped)."""
@@ -72,6 +81,14 @@ class TransferFunction:
         """(..., 3) linear albedo at ``values``."""
         values = np.asarray(values, dtype=np.float64)
         return np.stack([np.interp(values, self.color_values, self.colors[:, c]) for c in range(3)], axis=-1)
+
+    def emission_at(self, values) -> np.ndarray:
+        """(..., 3) emitted radiance at ``values`` (``emission_scale`` applied); zero without emission points."""
+        values = np.asarray(values, dtype=np.float64)
+        if self.emission_values is None:
+            return np.zeros(values.shape + (3,))
+        return self.emission_scale * np.stack(
+            [np.interp(values, self.emission_values, self.emissions[:, c]) for c in range(3)], axis=-1)
 
     def extinction_at(self, values) -> np.ndarray:
         """Extinction per mm at ``values``: ``-ln(1 - opacity) / reference_length_mm``."""
@@ -93,10 +110,12 @@ class TransferFunction:
         if not high > low:
             high = low + 1.0
         values = np.linspace(low, high, n_entries)
+        emission = np.ascontiguousarray(self.emission_at(values), dtype=np.float32)
         return TransferArrays(
             albedo=np.ascontiguousarray(self.albedo_at(values), dtype=np.float32),
             extinction=np.ascontiguousarray(self.extinction_at(values), dtype=np.float32),
             lookup=np.array([low, (n_entries - 1) / (high - low)], dtype=np.float64),
+            emission=emission, emitting=bool(emission.max() > 0),
         )
 
     def to_dict(self) -> dict:
@@ -107,6 +126,8 @@ class TransferFunction:
             **({"medical": True} if self.medical else {}),
             "opacity": [[float(v), float(a)] for v, a in zip(self.opacity_values, self.opacity)],
             "color": [[float(v), [float(x) for x in c]] for v, c in zip(self.color_values, self.colors)],
+            **({"emission": [[float(v), [float(x) for x in c]] for v, c in zip(self.emission_values, self.emissions)],
+                "emission_scale": self.emission_scale} if self.emission_values is not None else {}),
         }
 
 
@@ -143,6 +164,8 @@ def parse_transfer_function(data: dict, source="<inline>") -> TransferFunction:
     medical = table.boolean("medical", False)
     opacity_points = table.raw("opacity")
     color_points = table.raw("color")
+    emission_points = table.raw("emission", None)
+    emission_scale = table.number("emission_scale", 1.0, low=0.0)
     table.finish()
 
     def points(key, entries, parse):
@@ -152,7 +175,8 @@ def parse_transfer_function(data: dict, source="<inline>") -> TransferFunction:
         for index, entry in enumerate(entries):
             where = f"{table.where(key)}[{index}]"
             if not isinstance(entry, list) or len(entry) != 2:
-                raise UserError(f"{where}: expected [value, {'opacity' if key == 'opacity' else '[r, g, b]'}], got {entry!r}")
+                raise UserError(f"{where}: expected [value, {'opacity' if key == 'opacity' else '[r, g, b]'}], "
+                                f"got {entry!r}")
             value = check_vector([entry[0]], where, length=1)[0]
             if values and value <= values[-1]:
                 raise UserError(f"{where}: values must increase, but {value!r} follows {values[-1]!r}")
@@ -166,9 +190,17 @@ def parse_transfer_function(data: dict, source="<inline>") -> TransferFunction:
     def parse_color(item, where):
         return check_vector(item, f"{where} colour", length=3, low=0.0, high=1.0)
 
+    def parse_emission(item, where):
+        return check_vector(item, f"{where} emission", length=3, low=0.0)
+
     opacity_values, opacity = points("opacity", opacity_points, parse_opacity)
     color_values, colors = points("color", color_points, parse_color)
+    emission_values = emissions = None
+    if emission_points is not None:
+        emission_values, emissions = points("emission", emission_points, parse_emission)
+        emissions = emissions.reshape(-1, 3)
     return TransferFunction(
         opacity_values=opacity_values, opacity=opacity, color_values=color_values, colors=colors.reshape(-1, 3),
         reference_length_mm=reference, name=name, scale=scale, notes=notes, source=str(source), medical=medical,
+        emission_values=emission_values, emissions=emissions, emission_scale=float(emission_scale),
     )
