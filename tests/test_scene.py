@@ -99,7 +99,7 @@ BAD_SCENES = {
                                "camera.position: equals the target"),
     "up along the view": (dict(extra_camera="up = [0.0, 120.0, -2.0]"), "camera.up: is parallel"),
     "negative irradiance": (dict(replace={"irradiance = [1.0, 1.0, 1.0]": "irradiance = [1.0, -1.0, 1.0]"}),
-                            "lights[0].irradiance: entries must lie in"),
+                            "lights[0].irradiance: entries must be >= 0.0"),
     "zero light direction": (dict(replace={"toward = [0.0, -1.0, 1.0]": "toward = [0.0, 0.0, 0.0]"}),
                              "lights[0].toward: must not be the zero vector"),
     "unknown light": (dict(replace={'kind = "directional"': 'kind = "area"'}), "lights[0].kind: must be one of"),
