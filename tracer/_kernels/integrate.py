@@ -175,7 +175,8 @@ def transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, 
     Marches steps of ``step`` mm with a random first step, extinction at each step's midpoint,
     stepping over empty macrocells (exact: they contribute zero optical depth); once the
     optical depth passes ``roulette_depth`` (ROULETTE_DEPTH: transmittance ROULETTE_BELOW; infinity
-    turns roulette off), one Russian-roulette draw ends the ray or divides on by the survival probability. With ``skip`` false, empty cells are marched through (for
+    turns roulette off), one Russian-roulette draw ends the ray or divides on by the survival
+    probability. With ``skip`` false, empty cells are marched through (for
     measurements). ``counts[row, 0]`` gains the field samples taken, ``counts[row, 1]`` those that fell
     in non-empty cells.
     """
@@ -340,7 +341,8 @@ def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, li
             continue
         dim = base_dim + 16 + 2 * light
         t = transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, lx, ly, lz, distance, step,
-                          roulette_depth, uniform(seed, pixel, sample, dim), uniform(seed, pixel, sample, dim + 1), skip, counts, row)
+                          roulette_depth, uniform(seed, pixel, sample, dim), uniform(seed, pixel, sample, dim + 1), skip,
+                          counts, row)
         scale = f * falloff * t
         s0 += scale * lights[light, 4]
         s1 += scale * lights[light, 5]
@@ -354,7 +356,8 @@ def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, li
     else:
         wx, wy, wz = sample_henyey_greenstein(dx, dy, dz, g, u1, u2)
     t = transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, wx, wy, wz, np.inf, step,
-                      roulette_depth, uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4), skip, counts, row)
+                      roulette_depth, uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4),
+                      skip, counts, row)
     if t > 0.0:
         e0, e1, e2 = environment_radiance(env_kind, env_colors, env_image, wx, wy, wz)
         s0 += t * e0
@@ -448,12 +451,12 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
             if emitting and sigma > 0.0:
                 # absorption-emission (Max 1995): int T sigma_a L_e dt over the step, sigma_a = sigma (1 - albedo),
                 # exact for the step's constant extinction
-                weight = math.exp(-tau) * -math.expm1(-dtau)
+                absorbed = math.exp(-tau) * -math.expm1(-dtau)     # the step's share of the light, T(a) (1 - e^-dtau)
                 l0, l1, l2 = albedo_at(emission, lookup, value)
                 a0, a1, a2 = albedo_at(albedo, lookup, value)
-                glow0 += weight * (1.0 - a0) * l0
-                glow1 += weight * (1.0 - a1) * l1
-                glow2 += weight * (1.0 - a2) * l2
+                glow0 += absorbed * (1.0 - a0) * l0
+                glow1 += absorbed * (1.0 - a1) * l1
+                glow2 += absorbed * (1.0 - a2) * l2
             tau += dtau
             j += 1
         counts[row, 0] += n_samples
