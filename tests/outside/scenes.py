@@ -26,6 +26,14 @@ def ball_volume(folder, n=41, half_extent=5.0):
     return write_volume(folder / "ball.nrrd", field, np.eye(3) * spacing, (axis[0],) * 3)
 
 
+def slab_volume(folder):
+    """A slab 40 x 40 x 10 mm whose value is the depth below its top face z = 10 mm: linear in z, so trilinear
+    interpolation and central differences are exact and the normal is +z everywhere."""
+    depth = np.linspace(10.0, 0.0, 21)
+    field = np.broadcast_to(depth, (21, 21, 21)).astype(np.float32)
+    return write_volume(folder / "slab.nrrd", field, np.diag([2.0, 2.0, 0.5]), (0.0, 0.0, 0.0))
+
+
 def flat_transfer(folder, opacity, albedo, low=0.0, high=2.0, name="flat.toml"):
     """The same opacity (per mm) and albedo for every value in [low, high] (and, clamped, beyond)."""
     return write_transfer(folder / name, [[low, opacity], [high, opacity]], [[low, albedo], [high, albedo]])

@@ -17,10 +17,10 @@ from scipy import stats
 import tracer
 from tests.reference import readme
 from tests.reference.camera import Pinhole
-from tests.reference.files import write_transfer, write_volume
+from tests.reference.files import write_transfer
 from tests.reference.media import Box
 
-from .scenes import box_volume, camera_table, flat_transfer, scene
+from .scenes import box_volume, camera_table, flat_transfer, scene, slab_volume
 
 SIGMA = 2.0
 SIZE = 64
@@ -28,13 +28,20 @@ VIEW = dict(position=(20.0, -35.0, 60.0), target=(20.0, 20.0, 10.0), fov_deg=6.0
 
 
 def slab_files(tmp_path, colours=None):
-    depth = np.linspace(10.0, 0.0, 21)                 # value = depth below the top face z = 10 mm
-    field = np.broadcast_to(depth, (21, 21, 21)).astype(np.float32)
-    volume = write_volume(tmp_path / "slab.nrrd", field, np.diag([2.0, 2.0, 0.5]), (0.0, 0.0, 0.0))
+    volume = slab_volume(tmp_path)
     opacity = 1 - math.exp(-SIGMA)
     colours = colours or [[0.0, [0.5, 0.5, 0.5]], [10.0, [0.5, 0.5, 0.5]]]
     transfer = write_transfer(tmp_path / "slab.toml", [[0.0, opacity], [10.0, opacity]], colours)
     return volume, transfer
+
+
+def depth_below_entry(frame, key):
+    """(depth buffer, its part below the top face) of a 1-spp render: the sample's own ray runs from the camera
+    through the event position and meets the top face z = 10 mm at the entry."""
+    position = frame[f"{key}_position"].astype(float)
+    depth = frame[f"{key}_depth"].astype(float)
+    ray = (position - np.asarray(VIEW["position"])) / depth[..., None]
+    return depth - (10.0 - VIEW["position"][2]) / ray[..., 2]
 
 
 def entry_and_exit(camera):
@@ -51,14 +58,9 @@ def test_event_and_level_depths_follow_the_stratified_thresholds(tmp_path):
                  [{"kind": "directional", "toward": [0.0, 0.0, 1.0], "irradiance": [1.0] * 3}],
                  spp=1, events=2, feature_levels=[0.3, 0.7], step_mm=0.25)
     frame = tracer.render(path, seed=2)
-    # each pixel's single sample: optical depth from the entry to the event, x = sigma (t - t_in), with t_in where
-    # the sample's own ray (from the camera through the event position) meets the top face
+    # each pixel's single sample: optical depth from the entry to the event, x = sigma (t - t_in)
     for key, low, high in (("event1", 0.0, 0.5), ("event2", 0.5, 1.0)):
-        position = frame[f"{key}_position"].astype(float)
-        depth = frame[f"{key}_depth"].astype(float)
-        ray = (position - np.asarray(VIEW["position"])) / depth[..., None]
-        entry = (10.0 - VIEW["position"][2]) / ray[..., 2]              # the ray meets the top face z = 10
-        x = SIGMA * (depth - entry).ravel()
+        x = SIGMA * depth_below_entry(frame, key).ravel()
 
         def cdf(value, low=low, high=high):
             return np.clip((1 - np.exp(-value) - low) / (high - low), 0, 1)
@@ -66,11 +68,7 @@ def test_event_and_level_depths_follow_the_stratified_thresholds(tmp_path):
         assert np.all(frame[f"{key}_hit"] == 1.0)
     # levels are fixed opacity thresholds: t = t_in - ln(1 - level) / sigma, deterministic
     for key, level in (("level1", 0.3), ("level2", 0.7)):
-        position = frame[f"{key}_position"].astype(float)
-        depth = frame[f"{key}_depth"].astype(float)
-        ray = (position - np.asarray(VIEW["position"])) / depth[..., None]
-        entry = (10.0 - VIEW["position"][2]) / ray[..., 2]
-        np.testing.assert_allclose(depth - entry, -math.log(1 - level) / SIGMA, atol=2e-4)
+        np.testing.assert_allclose(depth_below_entry(frame, key), -math.log(1 - level) / SIGMA, atol=2e-4)
 
 
 def test_albedo_buffer_is_the_transfer_function_colour_at_the_event(tmp_path):

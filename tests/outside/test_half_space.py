@@ -21,10 +21,9 @@ import numpy as np
 import pytest
 
 import tracer
-from tests.reference.files import write_volume
 from tests.reference.media import henyey_greenstein
 
-from .scenes import camera_table, flat_transfer, image_mean_z, scene
+from .scenes import camera_table, flat_transfer, image_mean_z, scene, slab_volume
 
 SIGMA = 2.0                                    # per mm
 ALBEDO = np.array([0.8, 0.6, 0.4])
@@ -33,9 +32,7 @@ TARGET = np.array([20.0, 20.0, 10.0])          # centre of the top face
 
 
 def slab(tmp_path, scattering, g, step_mm=0.25, seed=5):
-    depth = np.linspace(10.0, 0.0, 21)         # field value = depth below the top face z = 10 mm
-    field = np.broadcast_to(depth, (21, 21, 21)).astype(np.float32)
-    volume = write_volume(tmp_path / "slab.nrrd", field, np.diag([2.0, 2.0, 0.5]), (0.0, 0.0, 0.0))
+    volume = slab_volume(tmp_path)
     transfer = flat_transfer(tmp_path, 1 - math.exp(-SIGMA), ALBEDO, 0.0, 10.0)     # -ln(1 - a) = sigma x 1 mm
     d = np.array([math.sin(VIEW_POLAR), 0.0, -math.cos(VIEW_POLAR)])
     toward = [math.sin(LIGHT_POLAR), 0.0, math.cos(LIGHT_POLAR)]
