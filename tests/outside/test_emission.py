@@ -19,7 +19,7 @@ from .scenes import box_volume, camera_table, scene
 VIEW = dict(position=(-30.0, 4.0, 6.0), target=(5.0, 5.0, 5.0), fov_deg=6.0)
 
 
-def glowing_box(tmp_path, opacity, emission, background, scale=1.0, albedo=(0.0, 0.0, 0.0)):
+def glowing_box(tmp_path, opacity, emission, background, scale=1.0, albedo=(0.0, 0.0, 0.0), estimator="march"):
     volume = box_volume(tmp_path)
     transfer = write_transfer(tmp_path / "glow.toml", [[0.0, opacity], [2.0, opacity]], [[0.0, list(albedo)]])
     points = [[0.0, [float(e) for e in emission]], [2.0, [float(e) for e in emission]]]
@@ -27,7 +27,7 @@ def glowing_box(tmp_path, opacity, emission, background, scale=1.0, albedo=(0.0,
     transfer.write_text(text)
     path = scene(tmp_path, volume, transfer, camera_table(**VIEW, width=12, height=12), [],
                  {"kind": "constant", "radiance": [0.0, 0.0, 0.0], "background": list(background)}, spp=256,
-                 step_mm=0.5)
+                 step_mm=0.5, estimator=estimator)
     return tracer.render(path, seed=2)
 
 
@@ -39,11 +39,14 @@ def chords():
                      for r in range(12)])
 
 
+@pytest.mark.parametrize("estimator", ["march", "track"])
 @pytest.mark.parametrize("opacity", [0.05, 0.3])
-def test_a_glowing_absorbing_box_follows_the_emission_absorption_law(tmp_path, opacity):
+def test_a_glowing_absorbing_box_follows_the_emission_absorption_law(tmp_path, opacity, estimator):
+    """Under "track" the emission is collected where delta tracking stops the camera ray (the collision
+    estimator): noisy, the same mean."""
     sigma = -math.log(1 - opacity)
     emission, background = np.array([0.6, 0.3, 0.1]), np.array([0.2, 0.4, 0.8])
-    frame = glowing_box(tmp_path, opacity, emission * 0.5, background, scale=2.0)
+    frame = glowing_box(tmp_path, opacity, emission * 0.5, background, scale=2.0, estimator=estimator)
     transmittance = np.exp(-sigma * chords())[..., None]
     expected = background * transmittance + emission * (1 - transmittance)
     n = expected[..., 0].size
@@ -74,3 +77,16 @@ def test_a_scattering_albedo_emits_only_through_absorption(tmp_path):
     expected = 0.25 * emission * (1 - np.exp(-sigma * chords()))[..., None]
     error = np.abs(frame["radiance"].astype(float) - expected)
     assert np.all(error <= 4 * np.sqrt(frame["radiance_variance"].astype(float)) + 1e-6 * expected), error.max()
+
+
+def test_tracked_emission_with_a_scattering_albedo(tmp_path):
+    """The same law under "track": within 4 standard errors of the image mean."""
+    sigma = -math.log(1 - 0.2)
+    emission = np.array([1.0, 0.5, 0.25])
+    frame = glowing_box(tmp_path, 0.2, emission, (0.0, 0.0, 0.0), albedo=(0.75, 0.75, 0.75), estimator="track")
+    expected = 0.25 * emission * (1 - np.exp(-sigma * chords()))[..., None]
+    n = expected[..., 0].size
+    standard_error = np.sqrt(frame["radiance_variance"].astype(float).sum(axis=(0, 1))) / n
+    difference = frame["radiance"].astype(float).mean(axis=(0, 1)) - expected.mean(axis=(0, 1))
+    assert np.all(np.abs(difference) < 4 * standard_error), (difference, standard_error)
+    assert np.all(standard_error < 0.02 * expected.mean(axis=(0, 1)))

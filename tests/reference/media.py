@@ -127,3 +127,24 @@ def constant_environment_on_sphere(sphere: Sphere, sigma, p, d) -> float:
         return sigma * in_scattered(r) * math.exp(-sigma * (t - t0))
 
     return integrate.quad(integrand, t0, t1, epsabs=1e-12, epsrel=1e-8, limit=200)[0]
+
+
+def chandrasekhar_h(omega: float, mu, nodes: int = 256, tolerance: float = 1e-12):
+    """Chandrasekhar's H-function of isotropic scattering with single-scattering albedo ``omega`` at cosines ``mu``.
+
+    Iterates the integral equation in the form 1 / H(mu) = sqrt(1 - omega) + (omega / 2) int_0^1 mu' H(mu') /
+    (mu + mu') dmu' (Chandrasekhar, *Radiative Transfer*, 1960, ch. V) on Gauss-Legendre nodes of [0, 1]; that
+    form converges for every omega <= 1. The bidirectional reflection of the half-space is then
+    (omega / 4 pi) H(mu) H(mu0) / (mu + mu0) per unit irradiance times mu0.
+    """
+    x, w = np.polynomial.legendre.leggauss(nodes)
+    x, w = 0.5 * (x + 1.0), 0.5 * w
+    h = np.ones(nodes)
+    for _ in range(100000):
+        new = 1.0 / (math.sqrt(1.0 - omega) + 0.5 * omega * (w * x * h / (x[:, None] + x[None, :])).sum(axis=1))
+        if np.max(np.abs(new - h)) < tolerance:
+            h = new
+            break
+        h = new
+    mu = np.asarray(mu, float)
+    return 1.0 / (math.sqrt(1.0 - omega) + 0.5 * omega * (w * x * h / (mu[..., None] + x)).sum(axis=-1))

@@ -21,23 +21,16 @@ from numba import njit, prange
 
 from ..config import JIT, JIT_PARALLEL
 from .rng import uniform
-from .sampling import (INV_PI, albedo_at, extinction_at, gradient_bricked, henyey_greenstein, sample_cosine,
-                       sample_henyey_greenstein, table_position, trilinear_bricked)
-
-# integer codes (strings never reach compiled code)
-SCATTER_MEDIUM = 0
-SCATTER_INTERFACE = 1
-SCATTER_GRADED = 2
-ENV_CONSTANT = 0
-ENV_SKY = 1
-ENV_IMAGE = 2
-LIGHT_DIRECTIONAL = 0
-LIGHT_POINT = 1
+from .geometry import (CELL, INV_CELL, box_interval, build_macrocells, cell_exit, next_segment_after,  # noqa: F401
+                       segment_bounds, to_index, to_index_direction)
+from .sampling import albedo_at, extinction_at, sample_cosine, sample_henyey_greenstein, trilinear_bricked
+from .tracking import MAX_LIGHTS, follow_path, tracked_camera_path  # noqa: F401
+from .shading import (ENV_CONSTANT, ENV_IMAGE, ENV_SKY, LIGHT_DIRECTIONAL, LIGHT_POINT, SCATTER_GRADED,  # noqa: F401
+                      SCATTER_INTERFACE, SCATTER_MEDIUM, environment_radiance, event_frame, interface_weight, lobe)
 
 MAX_EVENTS = 4
 MAX_LEVELS = 2
 SCRATCH = 2 * MAX_EVENTS + 2 * MAX_LEVELS
-MAX_LIGHTS = 16
 N_BASE_CHANNELS = 10
 BLOCK = 8
 
@@ -53,118 +46,8 @@ ROULETTE_DEPTH = -math.log(ROULETTE_BELOW)   # compare optical depth, not exp(-t
 #: A camera ray stops once all its events are found and its transmittance is below exp(-this):
 #: alpha is then exact to 1e-5 (early ray termination, common practice).
 TERMINATE_OPTICAL_DEPTH = 11.5129
-#: Macrocells span this many voxel intervals per axis.
-CELL = 8
-INV_CELL = 1.0 / CELL
-
-
-@njit(**JIT)
-def box_interval(field_shape, ox, oy, oz, dx, dy, dz):
-    """Ray-box slab test in index space against [0, n-1]^3; returns (t_enter, t_exit), t_exit < t_enter if missed."""
-    t0 = 0.0
-    t1 = np.inf
-    for axis in range(3):
-        o = ox if axis == 0 else (oy if axis == 1 else oz)
-        d = dx if axis == 0 else (dy if axis == 1 else dz)
-        high = field_shape[axis] - 1.0
-        if abs(d) < 1e-300:
-            if o < 0.0 or o > high:
-                return 1.0, 0.0
-        else:
-            a = (0.0 - o) / d
-            b = (high - o) / d
-            if a > b:
-                a, b = b, a
-            t0 = max(t0, a)
-            t1 = min(t1, b)
-    return t0, t1
-
-
-@njit(**JIT)
-def to_index(world_to_index, px, py, pz):
-    m = world_to_index
-    return (m[0, 0] * px + m[0, 1] * py + m[0, 2] * pz + m[0, 3],
-            m[1, 0] * px + m[1, 1] * py + m[1, 2] * pz + m[1, 3],
-            m[2, 0] * px + m[2, 1] * py + m[2, 2] * pz + m[2, 3])
-
-
-@njit(**JIT)
-def to_index_direction(world_to_index, dx, dy, dz):
-    m = world_to_index
-    return (m[0, 0] * dx + m[0, 1] * dy + m[0, 2] * dz,
-            m[1, 0] * dx + m[1, 1] * dy + m[1, 2] * dz,
-            m[2, 0] * dx + m[2, 1] * dy + m[2, 2] * dz)
-
-
-@njit(**JIT_PARALLEL)
-def build_macrocells(field, extinction, lookup, out):
-    """Largest extinction any point of each macrocell can take.
-
-    field (nx, ny, nz) float32; extinction (n,) float32 table; lookup (2,) float64;
-    out (ceil((nx-1)/CELL), ...) float32. Cell c covers voxel indices [CELL c, CELL c + CELL]
-    (the trilinear field inside it is a convex combination of those voxels); its value is the
-    largest table entry over the table interval spanning the cell's [min, max] value, so a cell
-    holding 0 has zero extinction everywhere inside it, exactly.
-    """
-    nx, ny, nz = field.shape
-    cx, cy, cz = out.shape
-    n_entries = extinction.shape[0]
-    for a in prange(cx):
-        for b in range(cy):
-            for c in range(cz):
-                low = np.inf
-                high = -np.inf
-                for i in range(a * CELL, min(a * CELL + CELL, nx - 1) + 1):
-                    for j in range(b * CELL, min(b * CELL + CELL, ny - 1) + 1):
-                        for k in range(c * CELL, min(c * CELL + CELL, nz - 1) + 1):
-                            value = field[i, j, k]
-                            low = min(low, value)
-                            high = max(high, value)
-                e0 = int(math.floor(table_position(lookup, n_entries, low)))
-                e1 = min(int(math.ceil(table_position(lookup, n_entries, high))), n_entries - 1)
-                largest = 0.0
-                for e in range(e0, e1 + 1):
-                    largest = max(largest, extinction[e])
-                out[a, b, c] = largest
-
-
-@njit(**JIT)
-def cell_exit(cells, ox, oy, oz, ix, iy, iz, px, py, pz):
-    """For index point p on the ray o + t i: whether its macrocell is empty, and the ray parameter
-    where the ray leaves that cell."""
-    a = min(int(px * INV_CELL), cells.shape[0] - 1)
-    b = min(int(py * INV_CELL), cells.shape[1] - 1)
-    c = min(int(pz * INV_CELL), cells.shape[2] - 1)
-    t_exit = np.inf
-    if ix > 0.0:
-        t_exit = min(t_exit, ((a + 1) * CELL - ox) / ix)
-    elif ix < 0.0:
-        t_exit = min(t_exit, (a * CELL - ox) / ix)
-    if iy > 0.0:
-        t_exit = min(t_exit, ((b + 1) * CELL - oy) / iy)
-    elif iy < 0.0:
-        t_exit = min(t_exit, (b * CELL - oy) / iy)
-    if iz > 0.0:
-        t_exit = min(t_exit, ((c + 1) * CELL - oz) / iz)
-    elif iz < 0.0:
-        t_exit = min(t_exit, (c * CELL - oz) / iz)
-    return cells[a, b, c] <= 0.0, t_exit
-
-
-@njit(**JIT)
-def segment_bounds(t0, t1, step, u_offset, j):
-    """Segment j of a march: [t0, t0 + u step], then steps of ``step``; computed, not accumulated,
-    so skipping ahead lands on the very same boundaries."""
-    ta = t0 if j == 0 else t0 + (u_offset + (j - 1)) * step
-    tb = min(t0 + (u_offset + j) * step, t1)
-    return ta, tb
-
-
-@njit(**JIT)
-def next_segment_after(t0, step, u_offset, j, t_exit):
-    """The first segment after j whose (unclipped) midpoint lies at or beyond t_exit."""
-    candidate = int(math.ceil((t_exit - t0) / step - u_offset + 0.5))
-    return max(j + 1, candidate)
+ESTIMATOR_MARCH = 0
+ESTIMATOR_TRACK = 1
 
 
 @njit(**JIT)
@@ -223,103 +106,14 @@ def transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, 
 
 
 @njit(**JIT)
-def environment_radiance(env_kind, env_colors, env_image, dx, dy, dz):
-    """Environment radiance seen along unit direction d (world +z up).
-
-    constant: ``env_colors[0]``; sky: horizon -> zenith by sqrt(z) above the horizon, horizon
-    -> ground within a few degrees below it; image: lat-long, row 0 at +z, column 0 at
-    azimuth 0 (+x), azimuth growing toward +y, bilinear with wrap in azimuth.
-    """
-    if env_kind == ENV_CONSTANT:
-        return env_colors[0, 0], env_colors[0, 1], env_colors[0, 2]
-    if env_kind == ENV_SKY:
-        z = min(max(dz, -1.0), 1.0)
-        if z >= 0.0:
-            s = math.sqrt(z)
-            return (env_colors[1, 0] * (1 - s) + env_colors[0, 0] * s,
-                    env_colors[1, 1] * (1 - s) + env_colors[0, 1] * s,
-                    env_colors[1, 2] * (1 - s) + env_colors[0, 2] * s)
-        s = min(1.0, -z * 8.0)
-        return (env_colors[1, 0] * (1 - s) + env_colors[2, 0] * s,
-                env_colors[1, 1] * (1 - s) + env_colors[2, 1] * s,
-                env_colors[1, 2] * (1 - s) + env_colors[2, 2] * s)
-    h, w = env_image.shape[0], env_image.shape[1]
-    theta = math.acos(min(max(dz, -1.0), 1.0))
-    phi = math.atan2(dy, dx)
-    if phi < 0.0:
-        phi += 2.0 * math.pi
-    v = theta / math.pi * h - 0.5
-    u = phi / (2.0 * math.pi) * w - 0.5
-    r0 = int(math.floor(v))
-    c0 = int(math.floor(u))
-    fv = v - r0
-    fu = u - c0
-    ra = min(max(r0, 0), h - 1)
-    rb = min(max(r0 + 1, 0), h - 1)
-    ca = c0 % w
-    cb = (c0 + 1) % w
-    out0 = 0.0
-    out1 = 0.0
-    out2 = 0.0
-    for rr, wr in ((ra, 1.0 - fv), (rb, fv)):
-        for cc, wc in ((ca, 1.0 - fu), (cb, fu)):
-            wt = wr * wc
-            out0 += wt * env_image[rr, cc, 0]
-            out1 += wt * env_image[rr, cc, 1]
-            out2 += wt * env_image[rr, cc, 2]
-    return out0, out1, out2
-
-
-@njit(**JIT)
-def event_frame(bricks, shape, world_to_index, gradient_to_world, px, py, pz, dx, dy, dz):
-    """Scalar value, unit normal (facing the incoming ray) and world gradient magnitude at p."""
-    ix, iy, iz = to_index(world_to_index, px, py, pz)
-    value = trilinear_bricked(bricks, shape, ix, iy, iz)
-    gi, gj, gk = gradient_bricked(bricks, shape, ix, iy, iz)
-    g = gradient_to_world
-    gx = g[0, 0] * gi + g[0, 1] * gj + g[0, 2] * gk
-    gy = g[1, 0] * gi + g[1, 1] * gj + g[1, 2] * gk
-    gz = g[2, 0] * gi + g[2, 1] * gj + g[2, 2] * gk
-    magnitude = math.sqrt(gx * gx + gy * gy + gz * gz)
-    if magnitude > 0.0:
-        nx, ny, nz = -gx / magnitude, -gy / magnitude, -gz / magnitude
-        if nx * dx + ny * dy + nz * dz > 0.0:
-            nx, ny, nz = -nx, -ny, -nz
-    else:
-        nx, ny, nz = -dx, -dy, -dz
-    return value, nx, ny, nz, magnitude
-
-
-@njit(**JIT)
-def interface_weight(scattering, gradient_scale, magnitude):
-    """Weight of the interface (Lambert) lobe: 0 for medium, 1 for interface, ``1 - exp(-|grad| * scale)`` for graded."""
-    if scattering == SCATTER_MEDIUM:
-        return 0.0
-    if scattering == SCATTER_INTERFACE:
-        return 1.0
-    return 1.0 - math.exp(-magnitude * gradient_scale)
-
-
-@njit(**JIT)
-def lobe(weight, g, nx, ny, nz, dx, dy, dz, lx, ly, lz):
-    """Blended scattering lobe per steradian for light arriving from direction l toward a ray travelling along d.
-
-    Surface part: Lambert ``max(0, n.l)/pi``; volume part: Henyey-Greenstein of the
-    scattering cosine ``d.l`` (light travelling along -l turns to travel along -d).
-    """
-    value = 0.0
-    if weight > 0.0:
-        value += weight * max(0.0, nx * lx + ny * ly + nz * lz) * INV_PI
-    if weight < 1.0:
-        value += (1.0 - weight) * henyey_greenstein(dx * lx + dy * ly + dz * lz, g)
-    return value
-
-
-@njit(**JIT)
-def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors, env_image,
-                    step, roulette_depth, g, weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim,
-                    skip, counts, row):
-    """Single-scattered radiance S at p before the albedo: direct lights plus one environment direction."""
+def scattered_light(volume, transfer, cells, lights, env_kind, env_colors, env_image, step, roulette_depth, g, weight,
+                    px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim, skip, counts, row, scattering,
+                    gradient_scale, bounces, chain):
+    """Radiance S scattered at event p before the albedo: direct lights (marched shadow rays) plus one
+    environment direction from the lobe, seen through a marched shadow ray (``bounces`` 1) or followed
+    for the remaining bounces by :func:`follow_path` (chain ``chain``)."""
+    _field, world_to_index, _index_to_world, _gradient_to_world, bricks, shape = volume
+    _albedo, extinction, lookup, _emission, _emitting = transfer
     s0 = 0.0
     s1 = 0.0
     s2 = 0.0
@@ -355,6 +149,11 @@ def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, li
         wx, wy, wz = sample_cosine(nx, ny, nz, u1, u2)
     else:
         wx, wy, wz = sample_henyey_greenstein(dx, dy, dz, g, u1, u2)
+    if bounces > 1:
+        e0, e1, e2 = follow_path(volume, transfer, cells, lights, env_kind, env_colors, env_image, scattering, g,
+                                 gradient_scale, roulette_depth, bounces, 1, px, py, pz, wx, wy, wz, seed, pixel, sample,
+                                 chain, counts, row)
+        return s0 + e0, s1 + e1, s2 + e2
     t = transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, wx, wy, wz, np.inf, step,
                       roulette_depth, uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4),
                       skip, counts, row)
@@ -368,15 +167,17 @@ def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, li
 
 @njit(**JIT)
 def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-               background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, seed, row, col,
-               width, height, sample, skip, acc, counts, scratch):
+               background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, bounces,
+               estimator, seed, row, col, width, height, sample, skip, acc, counts, scratch):
     """One sample path of pixel (row, col); adds its contribution to ``acc[row, col]``.
 
     ``scratch`` (SCRATCH,) float64 is the row's work space (allocated once per row, not per path):
-    event thresholds, level thresholds, event distances, level distances.
+    event thresholds, level thresholds, event distances, level distances. Under the "track"
+    ``estimator`` the march only finds the feature events and alpha; the radiance is a tracked path.
     """
     _field, world_to_index, _index_to_world, gradient_to_world, bricks, shape = volume
     albedo, extinction, lookup, emission, emitting = transfer
+    track = estimator == ESTIMATOR_TRACK
     pixel = row * width + col
     # camera ray (box filter over the pixel's square)
     sx = (col + uniform(seed, pixel, sample, DIM_JITTER)) / width * 2.0 - 1.0
@@ -448,7 +249,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
             while next_level < n_levels and tau + dtau >= level_targets[next_level]:
                 level_t[next_level] = ta + (level_targets[next_level] - tau) / sigma
                 next_level += 1
-            if emitting and sigma > 0.0:
+            if emitting and sigma > 0.0 and not track:
                 # absorption-emission (Max 1995): int T sigma_a L_e dt over the step, sigma_a = sigma (1 - albedo),
                 # exact for the step's constant extinction
                 absorbed = math.exp(-tau) * -math.expm1(-dtau)     # the step's share of the light, T(a) (1 - e^-dtau)
@@ -479,13 +280,15 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
         counts[row, 0] += 7
         counts[row, 1] += 7
         a0, a1, a2 = albedo_at(albedo, lookup, value)
-        weight = interface_weight(scattering, gradient_scale, magnitude)
-        s0, s1, s2 = scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors,
-                                     env_image, step, roulette_depth, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz,
-                                     seed, pixel, sample, DIM_EVENT + DIM_EVENT_STRIDE * k, skip, counts, row)
-        r0 += a0 * s0
-        r1 += a1 * s1
-        r2 += a2 * s2
+        if not track:
+            weight = interface_weight(scattering, gradient_scale, magnitude)
+            s0, s1, s2 = scattered_light(volume, transfer, cells, lights, env_kind, env_colors, env_image, step,
+                                         roulette_depth, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz, seed, pixel, sample,
+                                         DIM_EVENT + DIM_EVENT_STRIDE * k, skip, counts, row, scattering, gradient_scale,
+                                         bounces, k)
+            r0 += a0 * s0
+            r1 += a1 * s1
+            r2 += a2 * s2
         if k < 2:
             block = N_BASE_CHANNELS + BLOCK * k
             acc[row, col, block] += 1.0
@@ -517,9 +320,14 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
         acc[row, col, block + 5] += ny
         acc[row, col, block + 6] += nz
         acc[row, col, block + 7] += t
-    r0 = r0 / n_events + glow0
-    r1 = r1 / n_events + glow1
-    r2 = r2 / n_events + glow2
+    if track:
+        r0, r1, r2 = tracked_camera_path(volume, transfer, cells, lights, env_kind, env_colors, env_image, scattering, g,
+                                         gradient_scale, roulette_depth, bounces, px, py, pz, dx, dy, dz, b0, b1, b2,
+                                         seed, pixel, sample, counts, row)
+    else:
+        r0 = r0 / n_events + glow0
+        r1 = r1 / n_events + glow1
+        r2 = r2 / n_events + glow2
     acc[row, col, 0] += r0
     acc[row, col, 1] += r1
     acc[row, col, 2] += r2
@@ -546,8 +354,8 @@ def row_stride(n_rows):
 
 @njit(**JIT_PARALLEL)
 def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-                background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, seed,
-                row_start, row_end, sample_start, sample_end, skip, acc, counts, done):
+                background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, bounces,
+                estimator, seed, row_start, row_end, sample_start, sample_end, skip, acc, counts, done):
     """Add samples [sample_start, sample_end) of rows [row_start, row_end) to ``acc``.
 
     Parameters
@@ -567,6 +375,9 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
     levels : (n_levels,) float64 opacity levels of the fixed feature events
     roulette_depth : float; shadow and environment rays play Russian roulette once their optical depth
         passes this (ROULETTE_DEPTH); infinity turns roulette off (for measurements)
+    bounces : int; the most scattering events of a path (1: single scattering, today's estimator)
+    estimator : ESTIMATOR_MARCH or ESTIMATOR_TRACK (radiance by a delta-tracked path; the march still
+        finds the feature events and alpha)
     acc : (H, W, C) float64 accumulator; each row is written by exactly one iteration, and
         each pixel receives its samples in increasing order, so the sums are bit-identical for
         any thread count or pass split.
@@ -588,5 +399,5 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
             for sample in range(sample_start, sample_end):
                 trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                            background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth,
-                           seed, row, col, width, height, sample, skip, acc, counts, scratch)
+                           bounces, estimator, seed, row, col, width, height, sample, skip, acc, counts, scratch)
     done[0] = row_end

@@ -9,6 +9,7 @@ from ..scene import Scene
 SCATTERING_CODES = {"medium": 0, "interface": 1, "graded": 2}
 ENVIRONMENT_CODES = {"constant": 0, "sky": 1, "image": 2}
 LIGHT_CODES = {"directional": 0, "point": 1}
+ESTIMATOR_CODES = {"march": 0, "track": 1}
 
 
 def kernel_arguments(scene: Scene, skipping: bool = True, roulette: bool = True) -> tuple:
@@ -41,6 +42,7 @@ def kernel_arguments(scene: Scene, skipping: bool = True, roulette: bool = True)
         np.ascontiguousarray(image, dtype=np.float32), background, environment.background is None,
         SCATTERING_CODES[settings.scattering], settings.events, np.asarray(settings.feature_levels, dtype=np.float64),
         float(settings.step_mm), float(settings.phase_g), gradient_scale, ROULETTE_DEPTH if roulette else np.inf,
+        int(settings.bounces), ESTIMATOR_CODES[settings.estimator],
     ), bool(skipping)
 
 

@@ -78,6 +78,8 @@ class RenderSettings:
     phase_g: float = 0.0
     feature_levels: tuple[float, ...] = ()
     interface_gradient: float = 0.15
+    bounces: int = 1
+    estimator: str = "march"
 
     def to_dict(self) -> dict:
         out = dataclasses.asdict(self)

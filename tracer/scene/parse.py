@@ -181,9 +181,23 @@ def _parse_settings(table, volume: Volume) -> RenderSettings:
         raise table.error("feature_levels", f"levels must lie strictly between 0 and 1, got {list(levels)}")
     if len(levels) == 2 and levels[1] <= levels[0]:
         raise table.error("feature_levels", f"levels must increase, got {list(levels)}")
+    bounces, estimator = parse_transport(table)
     table.finish()
     return RenderSettings(spp=spp, seed=seed, step_mm=step, events=events, scattering=scattering, phase_g=phase_g,
-                          feature_levels=tuple(levels), interface_gradient=interface_gradient)
+                          feature_levels=tuple(levels), interface_gradient=interface_gradient, bounces=bounces,
+                          estimator=estimator)
+
+
+#: The most scattering events a path may have (``[render] bounces``).
+MAX_BOUNCES = 4096
+ESTIMATORS = ("march", "track")
+
+
+def parse_transport(table) -> tuple[int, str]:
+    """``bounces`` (1 = single scattering) and ``estimator`` (``"march"`` or ``"track"``) of a ``[render]`` table."""
+    bounces = table.integer("bounces", 1, low=1, high=MAX_BOUNCES)
+    estimator = table.string("estimator", "march", choices=ESTIMATORS)
+    return bounces, estimator
 
 
 def parse_scattering(table) -> tuple[str, float]:
