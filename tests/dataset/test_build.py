@@ -40,7 +40,8 @@ def assert_complete(folder: Path, n_items: int):
 @pytest.fixture(scope="module")
 def serial_dataset(tmp_path_factory):
     folder = tmp_path_factory.mktemp("serial")
-    plan = write_plan(folder / "plan", views=2, extra_render="reference_chunks = 2", extra='formats = ["npz", "exr"]')
+    plan = write_plan(folder / "plan", views=2, extra_render="reference_chunks = 2\nbounces = 3\nestimator = \"track\"",
+                      extra='formats = ["npz", "exr"]')
     summary = build_dataset(plan, folder / "out")
     return plan, folder / "out", summary
 

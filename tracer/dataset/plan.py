@@ -173,6 +173,7 @@ class DatasetPlan:
             opacity_values=base.opacity_values + shift,
             color_values=base.color_values + shift,
             emission_values=None if base.emission_values is None else base.emission_values + shift,
+            temperature_values=None if base.temperature_values is None else base.temperature_values + shift,
             opacity=np.clip(base.opacity * scales, 0.0, 1.0),
             name=f"{base.name} (jitter {item.variant})",
         )

@@ -57,6 +57,10 @@ class TransferFunction:
     emission_values, emissions : (k,) and (k, 3) arrays, optional
         Increasing scalar values and the emitted radiance (linear RGB, >= 0) at each, times ``emission_scale``;
         none: the medium does not glow.
+    temperature_values, temperatures : (k,) arrays, optional
+        Instead of emission points: increasing scalar values and a temperature (kelvin, >= 0) at each; the
+        medium glows as a blackbody at the interpolated temperature (:func:`tracer.optics.blackbody.blackbody_rgb`,
+        W m^-2 sr^-1), times ``emission_scale``.
     """
 
     opacity_values: np.ndarray
@@ -72,6 +76,8 @@ class TransferFunction:
     emission_values: np.ndarray | None = None
     emissions: np.ndarray | None = None
     emission_scale: float = 1.0
+    temperature_values: np.ndarray | None = None
+    temperatures: np.ndarray | None = None
 
     def opacity_at(self, values) -> np.ndarray:
         """Opacity per reference length at ``values`` (piecewise linear, clamped)."""
@@ -85,6 +91,10 @@ class TransferFunction:
     def emission_at(self, values) -> np.ndarray:
         """(..., 3) emitted radiance at ``values`` (``emission_scale`` applied); zero without emission points."""
         values = np.asarray(values, dtype=np.float64)
+        if self.temperature_values is not None:
+            from .blackbody import blackbody_rgb
+
+            return self.emission_scale * blackbody_rgb(np.interp(values, self.temperature_values, self.temperatures))
         if self.emission_values is None:
             return np.zeros(values.shape + (3,))
         return self.emission_scale * np.stack(
@@ -128,6 +138,8 @@ class TransferFunction:
             "color": [[float(v), [float(x) for x in c]] for v, c in zip(self.color_values, self.colors)],
             **({"emission": [[float(v), [float(x) for x in c]] for v, c in zip(self.emission_values, self.emissions)],
                 "emission_scale": self.emission_scale} if self.emission_values is not None else {}),
+            **({"temperature": [[float(v), float(k)] for v, k in zip(self.temperature_values, self.temperatures)],
+                "emission_scale": self.emission_scale} if self.temperature_values is not None else {}),
         }
 
 
@@ -165,6 +177,9 @@ def parse_transfer_function(data: dict, source="<inline>") -> TransferFunction:
     opacity_points = table.raw("opacity")
     color_points = table.raw("color")
     emission_points = table.raw("emission", None)
+    temperature_points = table.raw("temperature", None)
+    if emission_points is not None and temperature_points is not None:
+        raise table.error("temperature", "give either emission or temperature points, not both")
     emission_scale = table.number("emission_scale", 1.0, low=0.0)
     table.finish()
 
@@ -175,8 +190,8 @@ def parse_transfer_function(data: dict, source="<inline>") -> TransferFunction:
         for index, entry in enumerate(entries):
             where = f"{table.where(key)}[{index}]"
             if not isinstance(entry, list) or len(entry) != 2:
-                raise UserError(f"{where}: expected [value, {'opacity' if key == 'opacity' else '[r, g, b]'}], "
-                                f"got {entry!r}")
+                second = {"opacity": "opacity", "temperature": "kelvin"}.get(key, "[r, g, b]")
+                raise UserError(f"{where}: expected [value, {second}], got {entry!r}")
             value = check_vector([entry[0]], where, length=1)[0]
             if values and value <= values[-1]:
                 raise UserError(f"{where}: values must increase, but {value!r} follows {values[-1]!r}")
@@ -193,14 +208,21 @@ def parse_transfer_function(data: dict, source="<inline>") -> TransferFunction:
     def parse_emission(item, where):
         return check_vector(item, f"{where} emission", length=3, low=0.0)
 
+    def parse_kelvin(item, where):
+        return check_vector([item], f"{where} temperature (kelvin)", length=1, low=0.0, high=1e5)[0]
+
     opacity_values, opacity = points("opacity", opacity_points, parse_opacity)
     color_values, colors = points("color", color_points, parse_color)
     emission_values = emissions = None
     if emission_points is not None:
         emission_values, emissions = points("emission", emission_points, parse_emission)
         emissions = emissions.reshape(-1, 3)
+    temperature_values = temperatures = None
+    if temperature_points is not None:
+        temperature_values, temperatures = points("temperature", temperature_points, parse_kelvin)
     return TransferFunction(
         opacity_values=opacity_values, opacity=opacity, color_values=color_values, colors=colors.reshape(-1, 3),
         reference_length_mm=reference, name=name, scale=scale, notes=notes, source=str(source), medical=medical,
         emission_values=emission_values, emissions=emissions, emission_scale=float(emission_scale),
+        temperature_values=temperature_values, temperatures=temperatures,
     )
