@@ -50,6 +50,13 @@ def main() -> None:
     print("\n| measure | figure | target |\n|---|---|---|")
     for row in rows:
         print("| " + " | ".join(row) + " |")
+    if "transport" in r:
+        print("\n| demo, 128 x 128 | estimator | M paths/s at 1 / 4 / 16 bounces | field samples per path |\n|---|---|---|---|")
+        for name, rows_ in r["transport"].items():
+            for estimator in ("march", "track"):
+                cells = [rows_[f"{estimator} {b}"] for b in (1, 4, 16)]
+                print(f"| {name} | {estimator} | " + " / ".join(f"{c['paths_per_second'] / m:.3f}" for c in cells) + " | "
+                      + " / ".join(f"{c['field_samples_per_path']:.0f}" for c in cells) + " |")
 
 
 if __name__ == "__main__":

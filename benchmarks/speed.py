@@ -6,7 +6,10 @@ Prints a table and writes benchmarks/results/speed.json: the trilinear roofline 
 same threads) and the renderer's effective field samples per second; paths per second and
 seconds per spp of the three demos at 256x256 and 512x512; field samples per path with empty-
 space skipping on and off; 1 -> 2 threads; cold and warm start of `tracer render`; the NumPy
-oracle against the kernel; peak memory of 512x512 renders; the roofline for 128^3 and 256^3.
+oracle against the kernel; peak memory of 512x512 renders; the roofline for 128^3 and 256^3; and the
+light transport options: paths per second and field samples per path for bounces 1, 4 and 16 under
+both estimators on the four demos (``--only transport`` measures just these and keeps the rest of
+the saved results).
 """
 
 from __future__ import annotations
@@ -124,7 +127,40 @@ def peak_memory(name: str) -> float:
     return int(result.stdout.strip().splitlines()[-1]) / 1024.0
 
 
+def transport_rates(size: int = 128, spp: int = 4) -> dict:
+    """M paths/s and field samples per path for bounces 1, 4, 16, march and track, on each demo scene."""
+    import dataclasses
+
+    from tracer import load_scene
+
+    out: dict = {}
+    for name in ("figurine", "lattice", "plume", "flame"):
+        base = load_scene(ROOT / "examples" / f"{name}.toml").with_overrides(width=size, height=size)
+        out[name] = {}
+        for estimator in ("march", "track"):
+            for bounces in (1, 4, 16):
+                settings = dataclasses.replace(base.settings, bounces=bounces, estimator=estimator)
+                rate = render_rate(dataclasses.replace(base, settings=settings), spp=spp)
+                out[name][f"{estimator} {bounces}"] = {"paths_per_second": rate["paths_per_second"],
+                                                       "field_samples_per_path": rate["field_samples_per_path"]}
+                print(f"{name:10s} {estimator:6s} {bounces:3d} bounces: {rate['paths_per_second'] / 1e6:6.3f} M paths/s, "
+                      f"{rate['field_samples_per_path']:7.0f} field samples per path", flush=True)
+    return out
+
+
 def main() -> None:
+    import argparse
+
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--only", choices=["transport"], help="measure only this part; keep the rest of speed.json")
+    args = parser.parse_args()
+    results = ROOT / "benchmarks" / "results" / "speed.json"
+    if args.only == "transport":
+        report = json.loads(results.read_text())
+        report["transport"] = transport_rates()
+        results.write_text(json.dumps(report, indent=2))
+        return
+
     import numba
 
     from tests.outside.scenes import camera_table
@@ -194,6 +230,7 @@ def main() -> None:
     sizes["renderer_256_over_128"] = (sizes["256"]["renderer_effective_samples_per_second"]
                                       / sizes["128"]["renderer_effective_samples_per_second"])
     report["volume_size"] = sizes
+    report["transport"] = transport_rates()
 
     (ROOT / "benchmarks" / "results").mkdir(parents=True, exist_ok=True)
     (ROOT / "benchmarks" / "results" / "speed.json").write_text(json.dumps(report, indent=2))

@@ -58,3 +58,13 @@ def test_plume_is_soft():
     assert data.dtype == np.float32 and data.min() == 0.0 and 0.3 < data.max() < 1.0
     gradient = np.abs(np.diff(data, axis=2)).max()
     assert gradient < 0.25 * data.max()     # no sharp surfaces
+
+
+def test_flame_is_a_temperature_field_hot_below_and_smoky_above():
+    sample = generate("flame")
+    data = sample.data.astype(float)
+    assert sample.data.dtype == np.uint16
+    assert data.min() == 300 and 1850 <= data.max() <= 1950                 # ambient to a flame's core, kelvin
+    assert np.all(data[:4, :4, :] < 320)                                     # ambient air at the box's edge
+    flame_layers, smoke_layers = data[:, :, :40], data[:, :, 60:]            # below and above 20 / 30 mm
+    assert flame_layers.max() > 1800 and smoke_layers.max() < 1200 and (smoke_layers > 500).sum() > 500

@@ -38,6 +38,21 @@ def uniform(seed, pixel, sample, dimension):
     return (h >> _S11) * _TO_UNIT
 
 
+@njit(**JIT)
+def path_key(seed, pixel, sample):
+    """The counters' hash before the dimension: ``uniform_at(path_key(s, p, n), d) == uniform(s, p, n, d)``,
+    so a loop drawing many dimensions of one path hashes its first three counters once."""
+    h = mix64(np.uint64(seed) + _GOLDEN)
+    h = mix64(h ^ np.uint64(pixel))
+    return mix64(h ^ np.uint64(sample))
+
+
+@njit(**JIT)
+def uniform_at(key, dimension):
+    """:func:`uniform` from a :func:`path_key`: the same number."""
+    return (mix64(np.uint64(key) ^ np.uint64(dimension)) >> _S11) * _TO_UNIT
+
+
 def mix64_numpy(z: np.ndarray) -> np.ndarray:
     z = np.asarray(z, dtype=np.uint64)
     with np.errstate(over="ignore"):

@@ -20,7 +20,7 @@ from numba import njit
 
 from ..config import JIT
 from .geometry import CELL, INV_CELL, box_interval, to_index, to_index_direction
-from .rng import uniform
+from .rng import path_key, uniform, uniform_at
 from .sampling import albedo_at, extinction_at, sample_cosine, sample_henyey_greenstein, trilinear_bricked
 from .shading import LIGHT_DIRECTIONAL, environment_radiance, event_frame, interface_weight, lobe
 
@@ -82,20 +82,26 @@ def free_flight(bricks, shape, cells, world_to_index, extinction, lookup, px, py
     t1 = min(t1, t_max)
     if t1 <= t0:
         return ESCAPED
+    key = path_key(seed, pixel, sample)
     t = t0
     draw = 0
     n_samples = 0
     result = ESCAPED
-    while t < t1:
-        majorant, cell_end = cell_span(cells, ox, oy, oz, ix, iy, iz, t)
-        cell_end = min(cell_end, t1)
+    cell_end = t0
+    majorant = 0.0
+    while True:
+        if t >= cell_end:            # entered the next macrocell (or left the box)
+            if t >= t1:
+                break
+            majorant, cell_end = cell_span(cells, ox, oy, oz, ix, iy, iz, t)
+            cell_end = min(cell_end, t1)
         if majorant <= 0.0:
             t = cell_end
             continue
         if draw >= STREAM_LENGTH - 1:
             result = EXHAUSTED
             break
-        t_next = t - math.log1p(-uniform(seed, pixel, sample, dim + draw)) / majorant
+        t_next = t - math.log1p(-uniform_at(key, dim + draw)) / majorant
         draw += 1
         if t_next >= cell_end:
             t = cell_end
@@ -104,7 +110,7 @@ def free_flight(bricks, shape, cells, world_to_index, extinction, lookup, px, py
         value = trilinear_bricked(bricks, shape, ox + t * ix, oy + t * iy, oz + t * iz)
         n_samples += 1
         sigma = extinction_at(extinction, lookup, value)
-        if uniform(seed, pixel, sample, dim + draw) * majorant < sigma:
+        if uniform_at(key, dim + draw) * majorant < sigma:
             result = t
             break
         draw += 1
@@ -129,19 +135,25 @@ def ratio_tracking(bricks, shape, cells, world_to_index, extinction, lookup, px,
         return 1.0
     below = math.exp(-roulette_depth)
     estimate = 1.0
+    key = path_key(seed, pixel, sample)
     t = t0
     draw = 0
     n_samples = 0
-    while t < t1:
-        majorant, cell_end = cell_span(cells, ox, oy, oz, ix, iy, iz, t)
-        cell_end = min(cell_end, t1)
+    cell_end = t0
+    majorant = 0.0
+    while True:
+        if t >= cell_end:            # entered the next macrocell (or left the box)
+            if t >= t1:
+                break
+            majorant, cell_end = cell_span(cells, ox, oy, oz, ix, iy, iz, t)
+            cell_end = min(cell_end, t1)
         if majorant <= 0.0:
             t = cell_end
             continue
         if draw >= STREAM_LENGTH - 1:
             estimate = 0.0
             break
-        t_next = t - math.log1p(-uniform(seed, pixel, sample, dim + draw)) / majorant
+        t_next = t - math.log1p(-uniform_at(key, dim + draw)) / majorant
         draw += 1
         if t_next >= cell_end:
             t = cell_end
@@ -153,7 +165,7 @@ def ratio_tracking(bricks, shape, cells, world_to_index, extinction, lookup, px,
         if estimate <= 0.0:
             break
         if estimate < below:
-            if uniform(seed, pixel, sample, dim + draw) >= 0.25:
+            if uniform_at(key, dim + draw) >= 0.25:
                 estimate = 0.0
                 break
             draw += 1

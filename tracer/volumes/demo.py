@@ -10,6 +10,9 @@ The scenario: a small materials lab that scans what passes through it.
   micro-CT grey values), struts 2-3 voxels thick between two solid plates.
 - ``plume``: a soft, semi-transparent density field from a combustion simulation (float32),
   smoke-like, with no sharp surfaces.
+- ``flame``: the lab's kiln burner, a gas-flame tongue and the hot smoke above it, as a
+  temperature field in kelvin (uint16): ambient 300 K, about 1900 K in the flame's core. One
+  field drives both the glow (blackbody emission) and the soot that scatters it.
 
 ``tracer demo-volumes --out DIR`` writes them; the same code gives the same bits every time.
 """
@@ -173,7 +176,34 @@ def plume(seed: int = 37) -> Sample:
     return Sample("plume", density.astype(np.float32), spacing, "combustion-simulation smoke plume (float32 density)")
 
 
-GENERATORS = {"figurine": figurine, "lattice": lattice, "plume": plume}
+AMBIENT_K = 300.0
+FLAME_PEAK_K = 1950.0     # a hydrocarbon flame's core; about 1900-2000 K is the usual figure (from memory)
+
+
+def flame(seed: int = 41) -> Sample:
+    """A burner flame 64 x 64 x 96 cells of 0.5 mm: temperature (K, uint16), flame tongue below, smoke above."""
+    shape, spacing = (64, 64, 96), (0.5, 0.5, 0.5)
+    x, y, z = _grid(shape, spacing)
+    tip = 24.0                                            # flame length, mm
+    s = np.clip(z / tip, 0.0, None)
+    sway = 1.2 * np.sin(5.0 * s + 0.7) * s
+    rho = np.sqrt((x - sway) ** 2 + (y - 0.6 * sway) ** 2)
+    radius = 1.0 + 7.5 * np.clip(s, 1e-6, 1.0) ** 0.35 * np.clip(1.0 - s, 0.0, 1.0) ** 0.55
+    turbulence = np.zeros(np.broadcast_shapes(x.shape, y.shape, z.shape))
+    for octave, (cell, weight) in enumerate(((6.0, 0.55), (3.0, 0.3), (1.5, 0.15))):
+        turbulence = turbulence + weight * _value_noise(x, y, z - 4.0 * octave, cell, seed + octave)
+    tongue = np.exp(-((rho / radius) ** 3)) * np.clip(z / 1.5, 0, 1) * np.clip((1.15 - s) / 0.3, 0, 1)
+    above = np.clip(z - 0.7 * tip, 0.0, None)
+    smoke_radius = 3.0 + 0.35 * above
+    smoke = 0.38 * np.exp(-((rho / smoke_radius) ** 2)) * np.exp(-above / 22.0) * np.clip(above / 4.0, 0, 1) \
+        * np.clip((z.max() - z) / 6.0, 0, 1)
+    heat = np.maximum(tongue * (0.75 + 0.45 * turbulence), smoke * (0.5 + 1.0 * turbulence))
+    kelvin = AMBIENT_K + (FLAME_PEAK_K - AMBIENT_K) * np.clip(heat, 0.0, 1.0)
+    return Sample("flame", np.round(kelvin).astype(np.uint16), spacing,
+                  "kiln burner flame and its smoke (temperature in kelvin, uint16)")
+
+
+GENERATORS = {"figurine": figurine, "lattice": lattice, "plume": plume, "flame": flame}
 
 
 def generate(name: str) -> Sample:
