@@ -28,7 +28,7 @@ def test_shipped_volume_regenerates_bit_identically(root, name, tmp_path):
 
 @pytest.mark.parametrize("name", sorted(GENERATORS))
 def test_shipped_files_stay_small(root, name):
-    assert (root / "sample_volumes" / f"{name}.nrrd").stat().st_size < 3 * 2**20
+    assert (root / "sample_volumes" / f"{name}.nrrd").stat().st_size < 2_000_000     # README: "under 2 MB each"
 
 
 def test_figurine_is_hounsfield_like_with_wire_and_pores():

@@ -97,10 +97,10 @@ def test_tf_check_on_nan_volume_writes_nothing(tmp_path, root):
     assert not out.exists()
 
 
-def test_samples_command_writes_the_three_volumes(tmp_path):
+def test_demo_volumes_command_writes_the_four_volumes(tmp_path):
     result = invoke("demo-volumes", "--out", tmp_path / "demo")
     assert result.exit_code == 0, result.output
-    assert sorted(p.name for p in (tmp_path / "demo").iterdir()) == ["figurine.nrrd", "lattice.nrrd", "plume.nrrd"]
+    assert sorted(p.name for p in (tmp_path / "demo").iterdir()) == ["figurine.nrrd", "flame.nrrd", "lattice.nrrd", "plume.nrrd"]
 
 
 def test_every_bad_volume_is_one_line_from_tf_check_and_writes_nothing(tmp_path, root, monkeypatch):

@@ -23,10 +23,10 @@ from ..config import JIT, JIT_PARALLEL
 from .rng import uniform
 from .geometry import (CELL, INV_CELL, box_interval, build_macrocells, cell_exit, next_segment_after,  # noqa: F401
                        segment_bounds, to_index, to_index_direction)
-from .sampling import albedo_at, extinction_at, sample_cosine, sample_henyey_greenstein, trilinear_bricked
-from .tracking import MAX_LIGHTS, follow_path, tracked_camera_path  # noqa: F401
-from .shading import (ENV_CONSTANT, ENV_IMAGE, ENV_SKY, LIGHT_DIRECTIONAL, LIGHT_POINT, SCATTER_GRADED,  # noqa: F401
-                      SCATTER_INTERFACE, SCATTER_MEDIUM, environment_radiance, event_frame, interface_weight, lobe)
+from .sampling import albedo_at, extinction_at, trilinear_bricked
+from .shading import (ENV_CONSTANT, ENV_IMAGE, ENV_SKY, LIGHT_DIRECTIONAL, LIGHT_POINT, MAX_LIGHTS,  # noqa: F401
+                      SCATTER_GRADED, SCATTER_INTERFACE, SCATTER_MEDIUM, environment_radiance, event_frame, interface_weight, lobe,
+                      sample_lobe)
 
 MAX_EVENTS = 4
 MAX_LEVELS = 2
@@ -46,8 +46,6 @@ ROULETTE_DEPTH = -math.log(ROULETTE_BELOW)   # compare optical depth, not exp(-t
 #: A camera ray stops once all its events are found and its transmittance is below exp(-this):
 #: alpha is then exact to 1e-5 (early ray termination, common practice).
 TERMINATE_OPTICAL_DEPTH = 11.5129
-ESTIMATOR_MARCH = 0
-ESTIMATOR_TRACK = 1
 
 
 @njit(**JIT)
@@ -106,14 +104,9 @@ def transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, 
 
 
 @njit(**JIT)
-def scattered_light(volume, transfer, cells, lights, env_kind, env_colors, env_image, step, roulette_depth, g, weight,
-                    px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim, skip, counts, row, scattering,
-                    gradient_scale, bounces, chain):
-    """Radiance S scattered at event p before the albedo: direct lights (marched shadow rays) plus one
-    environment direction from the lobe, seen through a marched shadow ray (``bounces`` 1) or followed
-    for the remaining bounces by :func:`follow_path` (chain ``chain``)."""
-    _field, world_to_index, _index_to_world, _gradient_to_world, bricks, shape = volume
-    _albedo, extinction, lookup, _emission, _emitting = transfer
+def marched_direct_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, step, roulette_depth, g,
+                         weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim, skip, counts, row):
+    """Direct light at event p from every light through marched shadow rays, before the albedo."""
     s0 = 0.0
     s1 = 0.0
     s2 = 0.0
@@ -141,19 +134,19 @@ def scattered_light(volume, transfer, cells, lights, env_kind, env_colors, env_i
         s0 += scale * lights[light, 4]
         s1 += scale * lights[light, 5]
         s2 += scale * lights[light, 6]
+    return s0, s1, s2
+
+
+@njit(**JIT)
+def scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors, env_image,
+                    step, roulette_depth, g, weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim,
+                    skip, counts, row):
+    """Single-scattered radiance S at p before the albedo: direct lights plus one environment direction."""
+    s0, s1, s2 = marched_direct_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, step,
+                                      roulette_depth, g, weight, px, py, pz, nx, ny, nz, dx, dy, dz, seed, pixel, sample,
+                                      base_dim, skip, counts, row)
     # environment: one direction from the blended lobe (pdf = lobe, so the weight is 1)
-    u_lobe = uniform(seed, pixel, sample, base_dim)
-    u1 = uniform(seed, pixel, sample, base_dim + 1)
-    u2 = uniform(seed, pixel, sample, base_dim + 2)
-    if u_lobe < weight:
-        wx, wy, wz = sample_cosine(nx, ny, nz, u1, u2)
-    else:
-        wx, wy, wz = sample_henyey_greenstein(dx, dy, dz, g, u1, u2)
-    if bounces > 1:
-        e0, e1, e2 = follow_path(volume, transfer, cells, lights, env_kind, env_colors, env_image, scattering, g,
-                                 gradient_scale, roulette_depth, bounces, 1, px, py, pz, wx, wy, wz, seed, pixel, sample,
-                                 chain, counts, row)
-        return s0 + e0, s1 + e1, s2 + e2
+    wx, wy, wz = sample_lobe(weight, g, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim)
     t = transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, wx, wy, wz, np.inf, step,
                       roulette_depth, uniform(seed, pixel, sample, base_dim + 3), uniform(seed, pixel, sample, base_dim + 4),
                       skip, counts, row)
@@ -166,36 +159,27 @@ def scattered_light(volume, transfer, cells, lights, env_kind, env_colors, env_i
 
 
 @njit(**JIT)
-def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-               background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, bounces,
-               estimator, seed, row, col, width, height, sample, skip, acc, counts, scratch):
-    """One sample path of pixel (row, col); adds its contribution to ``acc[row, col]``.
-
-    ``scratch`` (SCRATCH,) float64 is the row's work space (allocated once per row, not per path):
-    event thresholds, level thresholds, event distances, level distances. Under the "track"
-    ``estimator`` the march only finds the feature events and alpha; the radiance is a tracked path.
-    """
-    _field, world_to_index, _index_to_world, gradient_to_world, bricks, shape = volume
-    albedo, extinction, lookup, emission, emitting = transfer
-    track = estimator == ESTIMATOR_TRACK
-    pixel = row * width + col
-    # camera ray (box filter over the pixel's square)
+def camera_ray(camera, seed, pixel, sample, row, col, width, height):
+    """Origin and unit direction of a camera ray through a uniform point of pixel (row, col) (box filter)."""
     sx = (col + uniform(seed, pixel, sample, DIM_JITTER)) / width * 2.0 - 1.0
     sy = 1.0 - (row + uniform(seed, pixel, sample, DIM_JITTER + 1)) / height * 2.0
     dx = camera[1, 0] + sx * camera[2, 0] + sy * camera[3, 0]
     dy = camera[1, 1] + sx * camera[2, 1] + sy * camera[3, 1]
     dz = camera[1, 2] + sx * camera[2, 2] + sy * camera[3, 2]
     norm = math.sqrt(dx * dx + dy * dy + dz * dz)
-    dx, dy, dz = dx / norm, dy / norm, dz / norm
-    px, py, pz = camera[0, 0], camera[0, 1], camera[0, 2]
+    return camera[0, 0], camera[0, 1], camera[0, 2], dx / norm, dy / norm, dz / norm
 
-    # background seen along the ray
-    if background_is_env:
-        b0, b1, b2 = environment_radiance(env_kind, env_colors, env_image, dx, dy, dz)
-    else:
-        b0, b1, b2 = background[0], background[1], background[2]
 
-    # march, locating the stochastic events and the fixed feature levels
+@njit(**JIT)
+def march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixel, sample, px, py, pz, dx, dy, dz,
+                     collect_glow, skip, counts, row, scratch):
+    """The camera ray's march: writes the event and level distances into ``scratch`` (-1: none) and returns
+    (optical depth, emitted radiance collected along the ray); the glow only when ``collect_glow``.
+
+    ``scratch`` (SCRATCH,) float64: event thresholds, level thresholds, event distances, level distances.
+    """
+    _field, world_to_index, _index_to_world, _gradient_to_world, bricks, shape = volume
+    albedo, extinction, lookup, emission, emitting = transfer
     n_levels = levels.shape[0]
     targets = scratch[0:MAX_EVENTS]
     level_targets = scratch[MAX_EVENTS:MAX_EVENTS + MAX_LEVELS]
@@ -249,7 +233,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
             while next_level < n_levels and tau + dtau >= level_targets[next_level]:
                 level_t[next_level] = ta + (level_targets[next_level] - tau) / sigma
                 next_level += 1
-            if emitting and sigma > 0.0 and not track:
+            if collect_glow and emitting and sigma > 0.0:
                 # absorption-emission (Max 1995): int T sigma_a L_e dt over the step, sigma_a = sigma (1 - albedo),
                 # exact for the step's constant extinction
                 absorbed = math.exp(-tau) * -math.expm1(-dtau)     # the step's share of the light, T(a) (1 - e^-dtau)
@@ -262,9 +246,72 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
             j += 1
         counts[row, 0] += n_samples
         counts[row, 1] += n_useful
+    return tau, glow0, glow1, glow2
+
+
+@njit(**JIT)
+def add_feature(acc, row, col, block, qx, qy, qz, nx, ny, nz, t):
+    """One sample's feature event into its block: count, position, normal, depth."""
+    acc[row, col, block] += 1.0
+    acc[row, col, block + 1] += qx
+    acc[row, col, block + 2] += qy
+    acc[row, col, block + 3] += qz
+    acc[row, col, block + 4] += nx
+    acc[row, col, block + 5] += ny
+    acc[row, col, block + 6] += nz
+    acc[row, col, block + 7] += t
+
+
+@njit(**JIT)
+def add_levels(volume, levels, px, py, pz, dx, dy, dz, acc, row, col, counts, scratch):
+    """The fixed-opacity feature events found by :func:`march_camera_ray` into their blocks."""
+    _field, world_to_index, _index_to_world, gradient_to_world, bricks, shape = volume
+    level_t = scratch[2 * MAX_EVENTS + MAX_LEVELS:SCRATCH]
+    for k in range(levels.shape[0]):
+        t = level_t[k]
+        if t < 0.0:
+            continue
+        qx, qy, qz = px + t * dx, py + t * dy, pz + t * dz
+        value, nx, ny, nz, magnitude = event_frame(bricks, shape, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
+        counts[row, 0] += 7
+        counts[row, 1] += 7
+        add_feature(acc, row, col, N_BASE_CHANNELS + BLOCK * (2 + k), qx, qy, qz, nx, ny, nz, t)
+
+
+@njit(**JIT)
+def add_radiance(acc, row, col, r0, r1, r2, alpha):
+    acc[row, col, 0] += r0
+    acc[row, col, 1] += r1
+    acc[row, col, 2] += r2
+    acc[row, col, 3] += r0 * r0
+    acc[row, col, 4] += r1 * r1
+    acc[row, col, 5] += r2 * r2
+    acc[row, col, 6] += alpha
+
+
+@njit(**JIT)
+def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
+               background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, seed, row, col,
+               width, height, sample, skip, acc, counts, scratch):
+    """One sample path of pixel (row, col) (the default: march, single scattering); adds it to ``acc[row, col]``.
+
+    ``scratch`` (SCRATCH,) float64 is the row's work space (allocated once per row, not per path).
+    """
+    _field, world_to_index, _index_to_world, gradient_to_world, bricks, shape = volume
+    albedo, extinction, lookup, _emission, _emitting = transfer
+    pixel = row * width + col
+    px, py, pz, dx, dy, dz = camera_ray(camera, seed, pixel, sample, row, col, width, height)
+    # background seen along the ray
+    if background_is_env:
+        b0, b1, b2 = environment_radiance(env_kind, env_colors, env_image, dx, dy, dz)
+    else:
+        b0, b1, b2 = background[0], background[1], background[2]
+    tau, glow0, glow1, glow2 = march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixel, sample,
+                                                px, py, pz, dx, dy, dz, True, skip, counts, row, scratch)
     alpha = -math.expm1(-tau)
 
     # shade each stratum
+    event_t = scratch[MAX_EVENTS + MAX_LEVELS:2 * MAX_EVENTS + MAX_LEVELS]
     r0 = 0.0
     r1 = 0.0
     r2 = 0.0
@@ -280,61 +327,21 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
         counts[row, 0] += 7
         counts[row, 1] += 7
         a0, a1, a2 = albedo_at(albedo, lookup, value)
-        if not track:
-            weight = interface_weight(scattering, gradient_scale, magnitude)
-            s0, s1, s2 = scattered_light(volume, transfer, cells, lights, env_kind, env_colors, env_image, step,
-                                         roulette_depth, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz, seed, pixel, sample,
-                                         DIM_EVENT + DIM_EVENT_STRIDE * k, skip, counts, row, scattering, gradient_scale,
-                                         bounces, k)
-            r0 += a0 * s0
-            r1 += a1 * s1
-            r2 += a2 * s2
+        weight = interface_weight(scattering, gradient_scale, magnitude)
+        s0, s1, s2 = scattered_light(bricks, shape, cells, world_to_index, extinction, lookup, lights, env_kind, env_colors,
+                                     env_image, step, roulette_depth, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz,
+                                     seed, pixel, sample, DIM_EVENT + DIM_EVENT_STRIDE * k, skip, counts, row)
+        r0 += a0 * s0
+        r1 += a1 * s1
+        r2 += a2 * s2
         if k < 2:
-            block = N_BASE_CHANNELS + BLOCK * k
-            acc[row, col, block] += 1.0
-            acc[row, col, block + 1] += qx
-            acc[row, col, block + 2] += qy
-            acc[row, col, block + 3] += qz
-            acc[row, col, block + 4] += nx
-            acc[row, col, block + 5] += ny
-            acc[row, col, block + 6] += nz
-            acc[row, col, block + 7] += t
+            add_feature(acc, row, col, N_BASE_CHANNELS + BLOCK * k, qx, qy, qz, nx, ny, nz, t)
             if k == 0:
                 acc[row, col, 7] += a0
                 acc[row, col, 8] += a1
                 acc[row, col, 9] += a2
-    for k in range(n_levels):
-        t = level_t[k]
-        if t < 0.0:
-            continue
-        qx, qy, qz = px + t * dx, py + t * dy, pz + t * dz
-        value, nx, ny, nz, magnitude = event_frame(bricks, shape, world_to_index, gradient_to_world, qx, qy, qz, dx, dy, dz)
-        counts[row, 0] += 7
-        counts[row, 1] += 7
-        block = N_BASE_CHANNELS + BLOCK * (2 + k)
-        acc[row, col, block] += 1.0
-        acc[row, col, block + 1] += qx
-        acc[row, col, block + 2] += qy
-        acc[row, col, block + 3] += qz
-        acc[row, col, block + 4] += nx
-        acc[row, col, block + 5] += ny
-        acc[row, col, block + 6] += nz
-        acc[row, col, block + 7] += t
-    if track:
-        r0, r1, r2 = tracked_camera_path(volume, transfer, cells, lights, env_kind, env_colors, env_image, scattering, g,
-                                         gradient_scale, roulette_depth, bounces, px, py, pz, dx, dy, dz, b0, b1, b2,
-                                         seed, pixel, sample, counts, row)
-    else:
-        r0 = r0 / n_events + glow0
-        r1 = r1 / n_events + glow1
-        r2 = r2 / n_events + glow2
-    acc[row, col, 0] += r0
-    acc[row, col, 1] += r1
-    acc[row, col, 2] += r2
-    acc[row, col, 3] += r0 * r0
-    acc[row, col, 4] += r1 * r1
-    acc[row, col, 5] += r2 * r2
-    acc[row, col, 6] += alpha
+    add_levels(volume, levels, px, py, pz, dx, dy, dz, acc, row, col, counts, scratch)
+    add_radiance(acc, row, col, r0 / n_events + glow0, r1 / n_events + glow1, r2 / n_events + glow2, alpha)
 
 
 @njit(**JIT)
@@ -354,8 +361,8 @@ def row_stride(n_rows):
 
 @njit(**JIT_PARALLEL)
 def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-                background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, bounces,
-                estimator, seed, row_start, row_end, sample_start, sample_end, skip, acc, counts, done):
+                background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, seed,
+                row_start, row_end, sample_start, sample_end, skip, acc, counts, done):
     """Add samples [sample_start, sample_end) of rows [row_start, row_end) to ``acc``.
 
     Parameters
@@ -375,9 +382,6 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
     levels : (n_levels,) float64 opacity levels of the fixed feature events
     roulette_depth : float; shadow and environment rays play Russian roulette once their optical depth
         passes this (ROULETTE_DEPTH); infinity turns roulette off (for measurements)
-    bounces : int; the most scattering events of a path (1: single scattering, today's estimator)
-    estimator : ESTIMATOR_MARCH or ESTIMATOR_TRACK (radiance by a delta-tracked path; the march still
-        finds the feature events and alpha)
     acc : (H, W, C) float64 accumulator; each row is written by exactly one iteration, and
         each pixel receives its samples in increasing order, so the sums are bit-identical for
         any thread count or pass split.
@@ -399,5 +403,5 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
             for sample in range(sample_start, sample_end):
                 trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                            background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth,
-                           bounces, estimator, seed, row, col, width, height, sample, skip, acc, counts, scratch)
+                           seed, row, col, width, height, sample, skip, acc, counts, scratch)
     done[0] = row_end

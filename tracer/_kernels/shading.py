@@ -6,7 +6,9 @@ from numba import njit
 
 from ..config import JIT
 from .geometry import to_index
-from .sampling import INV_PI, gradient_bricked, henyey_greenstein, trilinear_bricked
+from .rng import uniform
+from .sampling import (INV_PI, gradient_bricked, henyey_greenstein, sample_cosine, sample_henyey_greenstein,
+                       trilinear_bricked)
 
 # integer codes (strings never reach compiled code)
 SCATTER_MEDIUM = 0
@@ -17,6 +19,7 @@ ENV_SKY = 1
 ENV_IMAGE = 2
 LIGHT_DIRECTIONAL = 0
 LIGHT_POINT = 1
+MAX_LIGHTS = 16
 
 
 @njit(**JIT)
@@ -110,3 +113,14 @@ def lobe(weight, g, nx, ny, nz, dx, dy, dz, lx, ly, lz):
     if weight < 1.0:
         value += (1.0 - weight) * henyey_greenstein(dx * lx + dy * ly + dz * lz, g)
     return value
+
+
+@njit(**JIT)
+def sample_lobe(weight, g, nx, ny, nz, dx, dy, dz, seed, pixel, sample, dim):
+    """A direction from the blended lobe (its density is the lobe, so the path weight stays 1)."""
+    u_lobe = uniform(seed, pixel, sample, dim)
+    u1 = uniform(seed, pixel, sample, dim + 1)
+    u2 = uniform(seed, pixel, sample, dim + 2)
+    if u_lobe < weight:
+        return sample_cosine(nx, ny, nz, u1, u2)
+    return sample_henyey_greenstein(dx, dy, dz, g, u1, u2)

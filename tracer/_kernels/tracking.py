@@ -21,10 +21,10 @@ from numba import njit
 from ..config import JIT
 from .geometry import CELL, INV_CELL, box_interval, to_index, to_index_direction
 from .rng import path_key, uniform, uniform_at
-from .sampling import albedo_at, extinction_at, sample_cosine, sample_henyey_greenstein, trilinear_bricked
-from .shading import LIGHT_DIRECTIONAL, environment_radiance, event_frame, interface_weight, lobe
+from .sampling import albedo_at, extinction_at, trilinear_bricked
+from .shading import (LIGHT_DIRECTIONAL, MAX_LIGHTS, environment_radiance, event_frame, interface_weight, lobe,
+                      sample_lobe)
 
-MAX_LIGHTS = 16
 MAX_CHAINS = 5                    # MAX_EVENTS march chains + the tracked camera path
 TRACK_CHAIN = 4
 #: The most vertices a path may have (the scene's ``bounces`` is at most this).
@@ -204,17 +204,6 @@ def tracked_direct_light(bricks, shape, cells, world_to_index, extinction, looku
         s1 += scale * lights[light, 5]
         s2 += scale * lights[light, 6]
     return s0, s1, s2
-
-
-@njit(**JIT)
-def sample_lobe(weight, g, nx, ny, nz, dx, dy, dz, seed, pixel, sample, dim):
-    """A direction from the blended lobe (its density is the lobe, so the path weight stays 1)."""
-    u_lobe = uniform(seed, pixel, sample, dim)
-    u1 = uniform(seed, pixel, sample, dim + 1)
-    u2 = uniform(seed, pixel, sample, dim + 2)
-    if u_lobe < weight:
-        return sample_cosine(nx, ny, nz, u1, u2)
-    return sample_henyey_greenstein(dx, dy, dz, g, u1, u2)
 
 
 @njit(**JIT)

@@ -42,8 +42,18 @@ def kernel_arguments(scene: Scene, skipping: bool = True, roulette: bool = True)
         np.ascontiguousarray(image, dtype=np.float32), background, environment.background is None,
         SCATTERING_CODES[settings.scattering], settings.events, np.asarray(settings.feature_levels, dtype=np.float64),
         float(settings.step_mm), float(settings.phase_g), gradient_scale, ROULETTE_DEPTH if roulette else np.inf,
-        int(settings.bounces), ESTIMATOR_CODES[settings.estimator],
     ), bool(skipping)
+
+
+def uses_transport_kernel(scene: Scene) -> bool:
+    """Whether the scene needs :func:`tracer._kernels.transport.render_rows_transport` (more than one bounce, or
+    the "track" estimator); the default (march, one bounce) runs the leaner ``render_rows``."""
+    return scene.settings.bounces > 1 or scene.settings.estimator != "march"
+
+
+def transport_arguments(scene: Scene) -> tuple:
+    """The arguments ``render_rows_transport`` takes after those of :func:`kernel_arguments`."""
+    return int(scene.settings.bounces), ESTIMATOR_CODES[scene.settings.estimator]
 
 
 def macrocells(field: np.ndarray, transfer) -> np.ndarray:

@@ -131,11 +131,18 @@ class KernelCall:
     """The path kernel bound to one scene's arrays; counts field samples and times its first load."""
 
     def __init__(self, scene: Scene, skipping: bool, roulette: bool = True):
-        from .._kernels.integrate import render_rows
-        from .arguments import kernel_arguments
+        from .arguments import kernel_arguments, transport_arguments, uses_transport_kernel
 
-        self.kernel = render_rows
         self.arguments, self.skip = kernel_arguments(scene, skipping, roulette)
+        if uses_transport_kernel(scene):
+            from .._kernels.transport import render_rows_transport
+
+            self.kernel = render_rows_transport
+            self.arguments += transport_arguments(scene)
+        else:
+            from .._kernels.integrate import render_rows
+
+            self.kernel = render_rows
         self.seed = scene.settings.seed
         self.counts = np.zeros((scene.camera.image_size[0], 2), np.int64)
         self.done = np.zeros(1, np.int64)
