@@ -8,7 +8,7 @@ ROOT = Path(__file__).resolve().parents[2]
 def write_plan(folder: Path, *, views=2, variants=0, width=24, height=24, input_spp=(1, 2), reference_spp=16,
                extra_render="", splits='train = 0.5\nvalidation = 0.25\ntest = 0.25\nby = "view"', volumes=("plume", "figurine"),
                extra="") -> Path:
-    tfs = {"figurine": "figurine_clay", "lattice": "lattice_metal", "plume": "plume_smoke"}
+    tfs = {"figurine": "figurine_clay", "lattice": "lattice_metal", "plume": "plume_smoke", "flame": "flame_soot"}
     volume_tables = "".join(
         f'[[volumes]]\npath = "{ROOT}/sample_volumes/{name}.nrrd"\n'
         f'transfer_functions = ["{ROOT}/transfer_functions/{tfs[name]}.toml"]\n\n' for name in volumes)

@@ -40,8 +40,9 @@ def assert_complete(folder: Path, n_items: int):
 @pytest.fixture(scope="module")
 def serial_dataset(tmp_path_factory):
     folder = tmp_path_factory.mktemp("serial")
+    # the flame glows (blackbody emission) and scatters: with 3 bounces under "track" it exercises every transport path
     plan = write_plan(folder / "plan", views=2, extra_render="reference_chunks = 2\nbounces = 3\nestimator = \"track\"",
-                      extra='formats = ["npz", "exr"]')
+                      extra='formats = ["npz", "exr"]', volumes=("plume", "flame"))
     summary = build_dataset(plan, folder / "out")
     return plan, folder / "out", summary
 
@@ -57,6 +58,9 @@ def test_serial_build_writes_every_item_with_a_manifest(serial_dataset):
     assert names == ["reference.exr", "reference.npz", "spp0001.exr", "spp0001.npz", "spp0002.exr", "spp0002.npz"]
     reference = read_npz(out / record["files"]["reference.npz"]["path"])
     assert reference.spp == 16 and reference.meta["render_seconds"] is None
+    flames = [read_npz(out / r["files"]["reference.npz"]["path"]) for r in read_manifest(out) if "flame" in r["volume"]]
+    assert flames and all(f.meta["scene"]["render"]["bounces"] == 3 for f in flames)
+    assert max((f["radiance"][..., 0] - 2 * f["radiance"][..., 2]).max() for f in flames) > 0.2    # it glows red-orange
     assert record["reference"]["psnr_vs_converged_db"] > 20
 
 
