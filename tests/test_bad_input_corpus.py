@@ -211,6 +211,8 @@ CASES = [
     Case("scene view misses the volume (warning)", "scene", scene({"target = [0.0, 0.0, 30.0]": "target = [0.0, -240.0, 30.0]"}),
          "warning: {tmp}/scene.toml: camera: the view misses the volume; the render will show only background",
          exit_code=0),
+    Case("render --estimator delta", "scene", render_with("--estimator", "delta"), "error: command line: --estimator must be one of march, track, got 'delta'"),
+    Case("render --bounces 0", "scene", render_with("--bounces", 0), "error: command line: --bounces: must lie in [1, 4096], got 0"),
     Case("render --threads 0", "scene", render_with("--threads", 0), f"error: --threads: must be a whole number from 1 to {THREADS} (the cores numba sees), got 0; leave it out to use them all"),
     # --- names of an earlier release, refused with their new name (for one release) ---------
     Case("former key shading", "former name", scene({"spp = 1": 'spp = 1\nshading = "hybrid"'}), 'error: {tmp}/scene.toml: render.shading: is now called scattering; write scattering = "graded" (former names: "phase" -> "medium", "surface" -> "interface", "hybrid" -> "graded")'),

@@ -78,3 +78,14 @@ def test_more_bounces_brighten_a_scattering_medium():
 def test_default_settings_are_todays_estimator():
     settings = RenderSettings()
     assert settings.bounces == 1 and settings.estimator == "march"
+
+
+def test_command_line_overrides_of_bounces_and_estimator_are_checked():
+    from tracer.errors import UserError
+
+    scene = blob_scene().with_overrides(bounces=12, estimator="track")
+    assert scene.settings.bounces == 12 and scene.settings.estimator == "track"
+    with pytest.raises(UserError, match=r"--bounces: must lie in \[1, 4096\], got 5000"):
+        blob_scene().with_overrides(bounces=5000)
+    with pytest.raises(UserError, match="--estimator must be one of march, track, got 'delta'"):
+        blob_scene().with_overrides(estimator="delta")

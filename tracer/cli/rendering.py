@@ -31,6 +31,8 @@ def render(
     format: Annotated[str, typer.Option("--format", help="Comma-separated: npz (always written), exr, png.")] = "npz,png",
     width: Annotated[Optional[int], typer.Option(help="Image width in pixels.")] = None,
     height: Annotated[Optional[int], typer.Option(help="Image height in pixels.")] = None,
+    bounces: Annotated[Optional[int], typer.Option(help="Most scattering events per path (1 = single scattering; the scene's [render] bounces otherwise).")] = None,
+    estimator: Annotated[Optional[str], typer.Option(help='"march" (stratified events, marched shadow rays) or "track" (delta and ratio tracking: no step bias); the scene\'s [render] estimator otherwise.')] = None,
     target_error: Annotated[Optional[float], typer.Option(help="Stop when the mean relative standard error of radiance over covered pixels is at most this (e.g. 0.01).")] = None,
     time_limit: Annotated[Optional[float], typer.Option(help="Stop after the pass that crosses this many seconds.")] = None,
     checkpoint_every: Annotated[Optional[float], typer.Option(help="Write a checkpoint every this many seconds.")] = None,
@@ -56,7 +58,8 @@ def render(
     former_option("--sample-offset", sample_offset, "--first-sample")
     check_threads(threads)
     formats = parse_formats(format)
-    loaded = load_scene(scene).with_overrides(spp=spp, seed=seed, width=width, height=height)
+    loaded = load_scene(scene).with_overrides(spp=spp, seed=seed, width=width, height=height, bounces=bounces,
+                                              estimator=estimator)
     name = name or scene.stem
     checkpoint = out / f"{name}.checkpoint.npz"
     checkpoint_path = checkpoint      # written every --checkpoint-every seconds, and always on Ctrl-C

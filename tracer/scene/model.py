@@ -68,6 +68,11 @@ class Environment:
         return out
 
 
+#: The most scattering events a path may have (``[render] bounces``), and the estimators (``[render] estimator``).
+MAX_BOUNCES = 4096
+ESTIMATORS = ("march", "track")
+
+
 @dataclass(frozen=True)
 class RenderSettings:
     spp: int = 64
@@ -100,7 +105,8 @@ class Scene:
     source: str = "<api>"
     environment_image: np.ndarray | None = None
 
-    def with_overrides(self, *, spp=None, seed=None, width=None, height=None, step_mm=None, events=None) -> "Scene":
+    def with_overrides(self, *, spp=None, seed=None, width=None, height=None, step_mm=None, events=None, bounces=None,
+                       estimator=None) -> "Scene":
         """A copy with CLI-style overrides applied and checked."""
         settings = self.settings
         camera = self.camera
@@ -115,6 +121,12 @@ class Scene:
             settings = dataclasses.replace(settings, step_mm=float(step_mm))
         if events is not None:
             settings = dataclasses.replace(settings, events=_check_int(events, f"{where}: --events", 1, 4))
+        if bounces is not None:
+            settings = dataclasses.replace(settings, bounces=_check_int(bounces, f"{where}: --bounces", 1, MAX_BOUNCES))
+        if estimator is not None:
+            if estimator not in ESTIMATORS:
+                raise UserError(f"{where}: --estimator must be one of {', '.join(ESTIMATORS)}, got {estimator!r}")
+            settings = dataclasses.replace(settings, estimator=estimator)
         if width is not None:
             camera = dataclasses.replace(camera, width=_check_int(width, f"{where}: --width", 1, MAX_RESOLUTION))
         if height is not None:

@@ -10,7 +10,7 @@ import numpy as np
 from ..errors import UserError
 from ..volumes.volume import Volume
 from .camera import DEFAULT_OFFSET, Camera
-from .model import (ENVIRONMENTS, LIGHT_KINDS, MAX_RESOLUTION, FORMER_SCATTERING_NAMES, SCATTERINGS, Environment, Light, RenderSettings, Scene,
+from .model import (ENVIRONMENTS, ESTIMATORS, MAX_BOUNCES, LIGHT_KINDS, MAX_RESOLUTION, FORMER_SCATTERING_NAMES, SCATTERINGS, Environment, Light, RenderSettings, Scene,
                     ViewWarning)
 
 
@@ -186,11 +186,6 @@ def _parse_settings(table, volume: Volume) -> RenderSettings:
     return RenderSettings(spp=spp, seed=seed, step_mm=step, events=events, scattering=scattering, phase_g=phase_g,
                           feature_levels=tuple(levels), interface_gradient=interface_gradient, bounces=bounces,
                           estimator=estimator)
-
-
-#: The most scattering events a path may have (``[render] bounces``).
-MAX_BOUNCES = 4096
-ESTIMATORS = ("march", "track")
 
 
 def parse_transport(table) -> tuple[int, str]:
