@@ -230,6 +230,36 @@ CASES = [
 ]
 
 
+def dicom_series(**options):
+    def setup(tmp: Path):
+        from tests.test_formats import write_series
+
+        write_series(tmp / "series", **options)
+        if options.get("uid") == "1.2.3":
+            write_series(tmp / "series", n_slices=3, uid="1.2.4", description="scout", seed=2, prefix="SC")
+        return ["convert", tmp / "series", tmp / "out" / "ct.nrrd"]
+    return setup
+
+
+def hdf5_volume(member):
+    def setup(tmp: Path):
+        import h5py
+
+        with h5py.File(tmp / "scan.h5", "w") as handle:
+            handle.create_dataset("volumes/ct", data=np.zeros((4, 4, 4), np.uint8))
+        return ["convert", f"{tmp / 'scan.h5'}::{member}", tmp / "out" / "ct.nrrd"]
+    return setup
+
+
+FORMAT_CASES = [
+    Case("DICOM mixed series", "format", dicom_series(uid="1.2.3"), "error: {tmp}/series: holds 2 DICOM series ('test series' (6 files), 'scout' (3 files)); (0020,000E) Series Instance UID must be the same for all: put each series in its own folder, or name one file of the series"),
+    Case("DICOM missing slice", "format", dicom_series(n_slices=8, skip=(4,)), "error: {tmp}/series: missing slices: (0020,0032) Image Position (Patient) jumps 2.500 mm after IM0000 where the others are 1.250 mm apart (about 1 missing)"),
+    Case("HDF5 missing dataset", "format", hdf5_volume("volumes/mr"), "error: {tmp}/scan.h5: no dataset 'volumes/mr'; datasets here: volumes/ct"),
+    Case("convert to a non-NRRD", "format", lambda tmp: ["convert", PLUME, tmp / "out" / "plume.vtk"], "error: {tmp}/out/plume.vtk: the output must be a .nrrd file"),
+]
+CASES += FORMAT_CASES
+
+
 def run_case(case: Case, tmp: Path):
     args = [str(a) for a in case.setup(tmp)]
     runner = CliRunner()

@@ -189,6 +189,12 @@ def _npy_object(tmp_path):
 
 
 def _wrong_suffix(tmp_path):
+    path = tmp_path / "volume.vtk"
+    path.write_bytes(b"# vtk DataFile Version 3.0\n")
+    return path
+
+
+def _damaged_tiff(tmp_path):
     path = tmp_path / "volume.tif"
     path.write_bytes(b"II*\x00")
     return path
@@ -212,6 +218,7 @@ BAD_VOLUMES = {
     "npy not 3-D": (_npy_2d, "must be 3-D"),
     "npy of objects": (_npy_object, "not a readable .npy array"),
     "unknown format": (_wrong_suffix, "unknown volume format"),
+    "damaged TIFF": (_damaged_tiff, "not a readable TIFF"),
 }
 
 

@@ -14,6 +14,7 @@ from .common import FORMER, console, error_console, former_command, medical_note
 
 def register(app: typer.Typer) -> None:
     app.command("info")(info)
+    app.command("convert")(convert)
     app.command("tf-check")(tf_check)
 
 
@@ -22,10 +23,14 @@ def register_demo_volumes(app: typer.Typer) -> None:
     app.command("samples", hidden=True, context_settings=FORMER)(former_command("samples", "demo-volumes"))
 
 
+VOLUME_HELP = ("Volume: .nrrd/.nhdr, .npy, .nii/.nii.gz, a DICOM series folder, .tif/.tiff (or a folder of pages), "
+               ".zarr or .h5 (STORE::ARRAY); all but NRRD and .npy need the formats extra.")
+
+
 @reports_user_errors
 def info(
-    volume: Annotated[Path, typer.Argument(help="Volume file: .nrrd, .nhdr or .npy.")],
-    spacing_mm: Annotated[Optional[str], typer.Option(help="For .npy: voxel spacing 'sx,sy,sz' in mm.")] = None,
+    volume: Annotated[Path, typer.Argument(help=VOLUME_HELP)],
+    spacing_mm: Annotated[Optional[str], typer.Option(help="For .npy, TIFF, zarr and HDF5: voxel spacing 'sx,sy,sz' in mm.")] = None,
     axes: Annotated[Optional[Path], typer.Option("--axes", help="Write an orientation check here (PNG): three small "
                     "renders (the default camera, from +x, from above) with the world axes drawn and labelled.")] = None,
     transfer_function: Annotated[Optional[Path], typer.Option("--tf", help="Transfer function for the --axes "
@@ -44,6 +49,9 @@ def info(
     summary = summarize(loaded)
     out = console.print
     out(f"[bold]{escape(str(volume))}[/bold]")
+    out(f"  format       {escape(loaded.source_format)}")
+    for label, text in loaded.details:
+        out(f"  {escape(label):<12s} {escape(text)}")
     out(f"  shape        {' x '.join(map(str, summary.shape))} voxels  \\[x, y, z]")
     out(f"  dtype        {summary.dtype} (rendered as float32)")
     out(f"  spacing      {' x '.join(f'{s:.4g}' for s in summary.spacing_mm)} mm")
@@ -124,10 +132,44 @@ def tf_check(
 def demo_volumes(
     out: Annotated[Path, typer.Option("--out", help="Folder to write the demo volumes into.")] = Path("sample_volumes"),
 ):
-    """Regenerate the demo volumes (figurine, lattice, plume) bit-identically as gzip NRRD files."""
+    """Regenerate the demo volumes (figurine, lattice, plume, flame) bit-identically as gzip NRRD files."""
     from ..volumes.demo import write_demo_volumes
 
     write_demo_volumes(out, progress=lambda name, path: console.print(f"  wrote {escape(str(path))}"))
+
+
+@reports_user_errors
+def convert(
+    source: Annotated[Path, typer.Argument(help=VOLUME_HELP)],
+    target: Annotated[Path, typer.Argument(help="The NRRD file to write (.nrrd, gzip-compressed).")],
+    spacing_mm: Annotated[Optional[str], typer.Option(help="For .npy, TIFF, zarr and HDF5: voxel spacing 'sx,sy,sz' in mm.")] = None,
+):
+    """Write any readable volume as NRRD with its world geometry (origin, directions, space), to check it
+    elsewhere or to skip the conversion next time. Whole-numbered values (stored integers, Hounsfield units
+    after a DICOM rescale) are written as the smallest integer type that holds them, others as float32."""
+    from ..errors import UserError
+    from ..volumes import load_volume
+    from ..volumes.nrrd import write_nrrd
+
+    if target.suffix.lower() != ".nrrd":
+        raise UserError(f"{target}: the output must be a .nrrd file")
+    spacing = _triple(spacing_mm, "--spacing-mm") if spacing_mm else None
+    loaded = load_volume(source, spacing_mm=spacing, allow_nonfinite=True)
+    import numpy as np
+
+    data = loaded.data
+    if np.all(np.isfinite(data)) and np.array_equal(data, np.round(data)):
+        # whole numbers (stored integers, or Hounsfield units after a DICOM rescale) stay whole: the smallest
+        # integer type that holds them, exact both ways
+        low, high = float(data.min()), float(data.max())
+        for kind in ("uint8", "int16", "uint16", "int32"):
+            if np.iinfo(kind).min <= low and high <= np.iinfo(kind).max:
+                data = data.astype(kind)
+                break
+    write_nrrd(target, data, loaded.origin, loaded.directions, space=loaded.space or "3D-right-handed")
+    console.print(f"  wrote {escape(str(target))}  ({loaded.source_format}, {' x '.join(map(str, loaded.shape))} voxels, "
+                  f"space {escape(loaded.space or '3D-right-handed')})")
+    medical_note(volume=loaded)
 
 
 def _triple(text: str, option: str) -> tuple[float, float, float]:

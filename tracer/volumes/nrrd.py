@@ -17,20 +17,9 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import UserError
-from .volume import ACCEPTED_DTYPES, BYTES_PER_VOXEL
+from .volume import ACCEPTED_DTYPES, BYTES_PER_VOXEL, RawVolume
 
 ENCODINGS = ("raw", "gzip", "gz", "bzip2", "bz2", "ascii", "text", "txt")
-
-
-@dataclass(frozen=True)
-class RawVolume:
-    """What a volume file holds: the array in [x, y, z] order and its geometry."""
-
-    data: np.ndarray          # (nx, ny, nz), file dtype, native byte order
-    origin: np.ndarray        # (3,) mm
-    directions: np.ndarray    # (3, 3) row a = world step (mm) of index axis a
-    dtype: str
-    space: str | None = None  # the header's ``space`` field, as written
 
 
 def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:

@@ -20,6 +20,28 @@ BYTES_PER_VOXEL = 10
 ACCEPTED_DTYPES = ("int8", "uint8", "int16", "uint16", "int32", "uint32", "float32", "float64")
 
 
+@dataclass(frozen=True)
+class RawVolume:
+    """What a volume file holds: the array in [x, y, z] order and its geometry (what every reader returns)."""
+
+    data: np.ndarray          # (nx, ny, nz), file dtype (or float32 after a rescale), native byte order
+    origin: np.ndarray        # (3,) mm
+    directions: np.ndarray    # (3, 3) row a = world step (mm) of index axis a
+    dtype: str
+    space: str | None = None  # the header's ``space`` field, as written
+    format: str = "NRRD"      # the source format, for ``tracer info`` and the render's meta
+    details: tuple = ()       # (label, text) pairs the format adds to ``tracer info`` (DICOM: modality, rescale, ...)
+
+
+def check_budget(path, shape, itemsize: int, budget: int) -> None:
+    """Refuse a volume of ``shape`` whose file bytes plus the renderer's copies exceed ``budget``, before reading it."""
+    n_voxels = int(np.prod(shape))
+    n_bytes = n_voxels * (itemsize + BYTES_PER_VOXEL)
+    if n_bytes > budget:
+        raise UserError(f"{path}: shape {tuple(int(n) for n in shape)} needs {n_bytes / 2**20:.0f} MiB, over the memory "
+                        f"budget of {budget / 2**20:.0f} MiB (set TRACER_MEMORY_BUDGET_MB to raise it)")
+
+
 class VolumeArrays(NamedTuple):
     """What kernels see of a volume.
 
@@ -67,6 +89,8 @@ class Volume:
     source: str = "<array>"
     source_dtype: str = "float32"
     space: str | None = None
+    source_format: str = "array"
+    details: tuple = ()
 
     def __post_init__(self):
         data = np.ascontiguousarray(self.data, dtype=np.float32)
