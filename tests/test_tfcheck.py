@@ -82,3 +82,28 @@ def test_a_background_spike_is_clipped_and_the_rest_keeps_its_shape():
     assert rest.max() < ceiling < 4 * rest.max()           # 2.5 x the 90th percentile of the occupied bins
     uniform = clipped_histogram(rng.uniform(0, 1, 10_000), 0.0, 1.0, n_bins=50)
     assert len(uniform[3]) == 0 and uniform[2] >= uniform[1].max()
+
+
+def test_emission_is_reported_as_what_the_medium_emits():
+    """(1 - albedo) L_e (sigma_a carries the emission, Max 1995): half the voxels glow with albedo 0.5 and
+    L_e = (2, 1, 0) where the value is 1, none where it is 0."""
+    import dataclasses
+
+    data = np.zeros((9, 9, 9))
+    data[:, :, 4:] = 1.0
+    tf = dataclasses.replace(constant([0.0, 1.0], [0.1, 0.1]), emission_values=np.array([0.0, 0.5, 1.0]),
+                             emissions=np.array([[0, 0, 0], [0, 0, 0], [2.0, 1.0, 0.0]]))
+    check = check_transfer_function(cube(data), tf)
+    assert check.glowing_fraction == pytest.approx(5 / 9)
+    assert check.brightest_glow[0] == pytest.approx((1.0, 0.5, 0.0)) and check.brightest_glow[1] == pytest.approx(1.0)
+    assert any(line.startswith("emission") for line in check.lines())
+    assert check_transfer_function(cube(data), constant([0.0, 1.0], [0.1, 0.1])).glowing_fraction is None
+
+
+def test_emission_where_nothing_absorbs_is_a_warning():
+    import dataclasses
+
+    tf = dataclasses.replace(constant([0.0, 0.5, 1.0], [0.0, 0.0, 0.1]), emission_values=np.array([0.0, 0.4, 0.5]),
+                             emissions=np.array([[1.0, 1.0, 1.0], [1.0, 1.0, 1.0], [0.0, 0.0, 0.0]]))
+    check = check_transfer_function(cube(np.linspace(0, 1, 729).reshape(9, 9, 9)), tf)
+    assert any("nothing will glow" in warning for warning in check.warnings)

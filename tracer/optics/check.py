@@ -36,6 +36,8 @@ class TransferCheck:
     mean_free_path_mm: float
     verdict: str
     warnings: list[str] = field(default_factory=list)
+    glowing_fraction: float | None = None        # voxels (opacity > 0) glowing above 1% of the brightest; None: no emission
+    brightest_glow: tuple | None = None          # ((r, g, b) of (1 - albedo) L_e, the value where it peaks)
 
     def lines(self) -> list[str]:
         lo, hi = self.data_range
@@ -48,6 +50,11 @@ class TransferCheck:
             f"diagonal crossing     {self.diagonal_mm:.4g} mm -> optical depth {self.optical_depth:.3g}, "
             f"transmittance {math.exp(-min(self.optical_depth, 700.0)):.3g}",
             f"mean free path        {self.mean_free_path_mm:.4g} mm",
+        ] + ([] if self.glowing_fraction is None else [
+            f"emission              {100 * self.glowing_fraction:.2f}% of voxels glow above 1% of the brightest, "
+            "(1 - albedo) L_e = "
+            f"({', '.join(f'{c:.3g}' for c in self.brightest_glow[0])}) at value {self.brightest_glow[1]:.6g}",
+        ]) + [
             f"verdict               {self.verdict}",
         ]
 
@@ -81,6 +88,21 @@ def check_transfer_function(volume: Volume, tf: TransferFunction) -> TransferChe
     if not warnings and nonzero_fraction == 0:
         warnings.append("no voxel has nonzero opacity: the render will show only background")
 
+    glowing_fraction = brightest = None
+    if tf.emission_values is not None or tf.temperature_values is not None:
+        # what the medium emits per unit extinction: (1 - albedo) L_e (absorption-emission, Max 1995)
+        glow_over_range = (1.0 - tf.albedo_at(grid)) * tf.emission_at(grid) * (opacity_over_range > 0)[:, None]
+        peak = int(np.argmax(glow_over_range.max(axis=1)))
+        brightest = (tuple(float(c) for c in glow_over_range[peak]), float(grid[peak]))
+        sample = data.ravel()[nonempty]
+        brightest_level = glow_over_range[peak].max()
+        glows = ((1.0 - tf.albedo_at(sample)) * tf.emission_at(sample)).max(axis=1) > 0.01 * brightest_level \
+            if sample.size and brightest_level > 0 else np.zeros(0)
+        glowing_fraction = float(glows.sum() / data.size)
+        if glow_over_range.max() == 0:
+            warnings.append("the emission is zero wherever the opacity or the absorption (1 - albedo) is: nothing "
+                            "will glow (sigma_a = sigma (1 - albedo) carries the emission)")
+
     if nonzero_fraction == 0 or opacity_over_range.max() == 0:
         verdict = "invisible: nothing will show"
     elif depth < NEARLY_INVISIBLE_DEPTH:
@@ -95,7 +117,8 @@ def check_transfer_function(volume: Volume, tf: TransferFunction) -> TransferChe
     return TransferCheck(
         data_range=(lo, hi), tf_span=(a, b), span_coverage=coverage, nonzero_fraction=nonzero_fraction,
         median_extinction_per_mm=median_sigma, diagonal_mm=diagonal, optical_depth=depth,
-        mean_free_path_mm=free_path, verdict=verdict, warnings=warnings,
+        mean_free_path_mm=free_path, verdict=verdict, warnings=warnings, glowing_fraction=glowing_fraction,
+        brightest_glow=brightest,
     )
 
 
