@@ -136,7 +136,7 @@ def peak_memory(name: str) -> dict:
     return out
 
 
-def transport_rates(size: int = 128, spp: int = 4) -> dict:
+def transport_rates(size: int = 128, spp: int = 16) -> dict:
     """M paths/s and field samples per path for bounces 1, 4, 16, march and track, on each demo scene."""
     import dataclasses
 
@@ -149,7 +149,7 @@ def transport_rates(size: int = 128, spp: int = 4) -> dict:
         for estimator in ("march", "track"):
             for bounces in (1, 4, 16):
                 settings = dataclasses.replace(base.settings, bounces=bounces, estimator=estimator)
-                rate = render_rate(dataclasses.replace(base, settings=settings), spp=spp)
+                rate = render_rate(dataclasses.replace(base, settings=settings), spp=spp, repeat=3)
                 out[name][f"{estimator} {bounces}"] = {"paths_per_second": rate["paths_per_second"],
                                                        "field_samples_per_path": rate["field_samples_per_path"]}
                 print(f"{name:10s} {estimator:6s} {bounces:3d} bounces: {rate['paths_per_second'] / 1e6:6.3f} M paths/s, "

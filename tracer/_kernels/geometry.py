@@ -11,6 +11,9 @@ from .sampling import table_position
 #: Macrocells span this many voxel intervals per axis.
 CELL = 8
 INV_CELL = 1.0 / CELL
+#: Tracking's majorant cells are finer (a thin dense structure then raises the majorant of less air).
+TRACK_CELL = 4
+INV_TRACK_CELL = 1.0 / TRACK_CELL
 
 
 @njit(**JIT)
@@ -52,11 +55,12 @@ def to_index_direction(world_to_index, dx, dy, dz):
 
 
 @njit(**JIT_PARALLEL)
-def build_macrocells(field, extinction, lookup, out):
+def build_macrocells(field, extinction, lookup, size, out):
     """Largest extinction any point of each macrocell can take.
 
     field (nx, ny, nz) float32; extinction (n,) float32 table; lookup (2,) float64;
-    out (ceil((nx-1)/CELL), ...) float32. Cell c covers voxel indices [CELL c, CELL c + CELL]
+    size: voxel intervals per cell (CELL for the march's skipping, TRACK_CELL for tracking);
+    out (ceil((nx-1)/size), ...) float32. Cell c covers voxel indices [size c, size c + size]
     (the trilinear field inside it is a convex combination of those voxels); its value is the
     largest table entry over the table interval spanning the cell's [min, max] value, so a cell
     holding 0 has zero extinction everywhere inside it, exactly.
@@ -69,9 +73,9 @@ def build_macrocells(field, extinction, lookup, out):
             for c in range(cz):
                 low = np.inf
                 high = -np.inf
-                for i in range(a * CELL, min(a * CELL + CELL, nx - 1) + 1):
-                    for j in range(b * CELL, min(b * CELL + CELL, ny - 1) + 1):
-                        for k in range(c * CELL, min(c * CELL + CELL, nz - 1) + 1):
+                for i in range(a * size, min(a * size + size, nx - 1) + 1):
+                    for j in range(b * size, min(b * size + size, ny - 1) + 1):
+                        for k in range(c * size, min(c * size + size, nz - 1) + 1):
                             value = field[i, j, k]
                             low = min(low, value)
                             high = max(high, value)

@@ -1,11 +1,12 @@
-"""Tracking against the macrocell majorants: free flights, transmittance, and paths of many bounces.
+"""Tracking against majorant cells: free flights, transmittance, and paths of many bounces.
 
 Free-flight distances come from delta tracking (Woodcock et al. 1965): tentative collisions at
 exponential distances of the cell's majorant, each real with probability sigma / majorant.
 Transmittance comes from ratio tracking (Novak, Selle and Jarosz 2014): the product of
 ``1 - sigma / majorant`` over the tentative collisions. Both are unbiased for any majorant that
 bounds the extinction, so they have no step size; empty cells (majorant 0) are crossed at no cost.
-The ray walks the macrocell grid, restarting the exponential at each cell boundary (memoryless).
+The ray walks a grid of TRACK_CELL^3-voxel majorant cells (finer than the march's macrocells), restarting the
+exponential at each cell boundary (memoryless).
 
 Random numbers: each tracked ray owns a stream of :data:`STREAM_LENGTH` dimensions of its own,
 ``stream(chain, vertex, slot)``; a chain is one camera event of the march (0..MAX_EVENTS-1) or the
@@ -19,7 +20,7 @@ import numpy as np
 from numba import njit
 
 from ..config import JIT
-from .geometry import CELL, INV_CELL, box_interval, to_index, to_index_direction
+from .geometry import INV_TRACK_CELL, TRACK_CELL, box_interval, to_index, to_index_direction
 from .rng import path_key, uniform, uniform_at
 from .sampling import albedo_at, extinction_at, trilinear_bricked
 from .shading import (LIGHT_DIRECTIONAL, MAX_LIGHTS, environment_radiance, event_frame, interface_weight, lobe,
@@ -52,22 +53,22 @@ def cell_span(cells, ox, oy, oz, ix, iy, iz, t):
     belongs to the cell ahead), and the ray parameter where the ray leaves that cell (always > t)."""
     nudge = 1e-9 * (1.0 + abs(t))
     s = t + nudge
-    a = min(max(int((ox + s * ix) * INV_CELL), 0), cells.shape[0] - 1)
-    b = min(max(int((oy + s * iy) * INV_CELL), 0), cells.shape[1] - 1)
-    c = min(max(int((oz + s * iz) * INV_CELL), 0), cells.shape[2] - 1)
+    a = min(max(int((ox + s * ix) * INV_TRACK_CELL), 0), cells.shape[0] - 1)
+    b = min(max(int((oy + s * iy) * INV_TRACK_CELL), 0), cells.shape[1] - 1)
+    c = min(max(int((oz + s * iz) * INV_TRACK_CELL), 0), cells.shape[2] - 1)
     t_exit = np.inf
     if ix > 0.0:
-        t_exit = min(t_exit, ((a + 1) * CELL - ox) / ix)
+        t_exit = min(t_exit, ((a + 1) * TRACK_CELL - ox) / ix)
     elif ix < 0.0:
-        t_exit = min(t_exit, (a * CELL - ox) / ix)
+        t_exit = min(t_exit, (a * TRACK_CELL - ox) / ix)
     if iy > 0.0:
-        t_exit = min(t_exit, ((b + 1) * CELL - oy) / iy)
+        t_exit = min(t_exit, ((b + 1) * TRACK_CELL - oy) / iy)
     elif iy < 0.0:
-        t_exit = min(t_exit, (b * CELL - oy) / iy)
+        t_exit = min(t_exit, (b * TRACK_CELL - oy) / iy)
     if iz > 0.0:
-        t_exit = min(t_exit, ((c + 1) * CELL - oz) / iz)
+        t_exit = min(t_exit, ((c + 1) * TRACK_CELL - oz) / iz)
     elif iz < 0.0:
-        t_exit = min(t_exit, (c * CELL - oz) / iz)
+        t_exit = min(t_exit, (c * TRACK_CELL - oz) / iz)
     return cells[a, b, c], max(t_exit, s)
 
 

@@ -30,7 +30,7 @@ ESTIMATOR_TRACK = 1
 @njit(**JIT)
 def trace_transport(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                     background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, bounces,
-                    estimator, seed, row, col, width, height, sample, skip, acc, counts, scratch):
+                    estimator, track_cells, seed, row, col, width, height, sample, skip, acc, counts, scratch):
     """One sample path of pixel (row, col) under ``bounces`` and ``estimator``; adds it to ``acc[row, col]``."""
     _field, world_to_index, _index_to_world, gradient_to_world, bricks, shape = volume
     albedo, extinction, lookup, _emission, _emitting = transfer
@@ -70,7 +70,7 @@ def trace_transport(volume, transfer, cells, camera, lights, env_kind, env_color
                                               roulette_depth, g, weight, qx, qy, qz, nx, ny, nz, dx, dy, dz, seed, pixel,
                                               sample, base_dim, skip, counts, row)
             wx, wy, wz = sample_lobe(weight, g, nx, ny, nz, dx, dy, dz, seed, pixel, sample, base_dim)
-            e0, e1, e2 = follow_path(volume, transfer, cells, lights, env_kind, env_colors, env_image, scattering, g,
+            e0, e1, e2 = follow_path(volume, transfer, track_cells, lights, env_kind, env_colors, env_image, scattering, g,
                                      gradient_scale, roulette_depth, bounces, 1, qx, qy, qz, wx, wy, wz, seed, pixel,
                                      sample, k, counts, row)
             r0 += a0 * (s0 + e0)
@@ -84,7 +84,7 @@ def trace_transport(volume, transfer, cells, camera, lights, env_kind, env_color
                 acc[row, col, 9] += a2
     add_levels(volume, levels, px, py, pz, dx, dy, dz, acc, row, col, counts, scratch)
     if track:
-        r0, r1, r2 = tracked_camera_path(volume, transfer, cells, lights, env_kind, env_colors, env_image, scattering, g,
+        r0, r1, r2 = tracked_camera_path(volume, transfer, track_cells, lights, env_kind, env_colors, env_image, scattering, g,
                                          gradient_scale, roulette_depth, bounces, px, py, pz, dx, dy, dz, b0, b1, b2,
                                          seed, pixel, sample, counts, row)
     else:
@@ -97,10 +97,11 @@ def trace_transport(volume, transfer, cells, camera, lights, env_kind, env_color
 @njit(**JIT_PARALLEL)
 def render_rows_transport(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                           background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth,
-                          bounces, estimator, seed, row_start, row_end, sample_start, sample_end, skip, acc, counts, done):
+                          bounces, estimator, track_cells, seed, row_start, row_end, sample_start, sample_end, skip, acc,
+                          counts, done):
     """:func:`tracer._kernels.integrate.render_rows` (same arguments, same row order and ``done`` protocol) with
-    ``bounces`` (the most scattering events of a path) and ``estimator`` (ESTIMATOR_MARCH or ESTIMATOR_TRACK)
-    before ``seed``."""
+    ``bounces`` (the most scattering events of a path), ``estimator`` (ESTIMATOR_MARCH or ESTIMATOR_TRACK) and
+    ``track_cells`` (the majorants of TRACK_CELL^3-voxel cells that tracking uses) before ``seed``."""
     width = acc.shape[1]
     n_rows = row_end - row_start
     stride = row_stride(n_rows)
@@ -111,6 +112,6 @@ def render_rows_transport(volume, transfer, cells, camera, lights, env_kind, env
             for sample in range(sample_start, sample_end):
                 trace_transport(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                                 background_is_env, scattering, n_events, levels, step, g, gradient_scale,
-                                roulette_depth, bounces, estimator, seed, row, col, width, acc.shape[0], sample, skip, acc,
-                                counts, scratch)
+                                roulette_depth, bounces, estimator, track_cells, seed, row, col, width, acc.shape[0],
+                                sample, skip, acc, counts, scratch)
     done[0] = row_end

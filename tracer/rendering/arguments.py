@@ -51,16 +51,22 @@ def uses_transport_kernel(scene: Scene) -> bool:
     return scene.settings.bounces > 1 or scene.settings.estimator != "march"
 
 
-def transport_arguments(scene: Scene) -> tuple:
-    """The arguments ``render_rows_transport`` takes after those of :func:`kernel_arguments`."""
-    return int(scene.settings.bounces), ESTIMATOR_CODES[scene.settings.estimator]
+def transport_arguments(scene: Scene, arguments: tuple) -> tuple:
+    """The arguments ``render_rows_transport`` takes after those of :func:`kernel_arguments` (``arguments``):
+    bounces, the estimator's code and tracking's finer majorant grid."""
+    from .._kernels.geometry import TRACK_CELL
+
+    track_cells = macrocells(scene.volume.data, arguments[1], TRACK_CELL)
+    return int(scene.settings.bounces), ESTIMATOR_CODES[scene.settings.estimator], track_cells
 
 
-def macrocells(field: np.ndarray, transfer) -> np.ndarray:
-    """(ceil((nx-1)/8), ...) float32: the largest extinction inside each 8^3-voxel macrocell."""
-    from .._kernels.integrate import CELL, build_macrocells
+def macrocells(field: np.ndarray, transfer, size: int | None = None) -> np.ndarray:
+    """(ceil((nx-1)/size), ...) float32: the largest extinction inside each size^3-voxel cell (default the
+    march's 8^3 macrocells)."""
+    from .._kernels.geometry import CELL, build_macrocells
 
-    shape = tuple(max(1, -(-(n - 1) // CELL)) for n in field.shape)
+    size = CELL if size is None else int(size)
+    shape = tuple(max(1, -(-(n - 1) // size)) for n in field.shape)
     out = np.empty(shape, np.float32)
-    build_macrocells(field, transfer.extinction, transfer.lookup, out)
+    build_macrocells(field, transfer.extinction, transfer.lookup, size, out)
     return out

@@ -138,7 +138,7 @@ class KernelCall:
             from .._kernels.transport import render_rows_transport
 
             self.kernel = render_rows_transport
-            self.arguments += transport_arguments(scene)
+            self.arguments += transport_arguments(scene, self.arguments)
         else:
             from .._kernels.integrate import render_rows
 
