@@ -5,7 +5,7 @@ import math
 import numpy as np
 import pytest
 
-from tracer._kernels.integrate import environment_radiance
+from tracer._kernels.shading import environment_radiance
 from tracer.errors import UserError
 from tracer.outputs.exr import write_image_exr
 from tracer.rendering import render

@@ -1,4 +1,8 @@
-"""The single-scatter path kernel: free-flight events by stratified opacity thresholds.
+"""The march and the default path kernel (one bounce): free-flight events by stratified opacity thresholds.
+
+Its camera-ray helpers (``camera_ray``, ``march_camera_ray``, ``add_feature``, ``add_levels``, ``add_radiance``,
+``marched_direct_light``) are shared with :mod:`.transport`, so the feature buffers mean the same under
+every transport option; this module never calls the tracking code (the default kernel compiles without it).
 
 For each pixel and sample the camera ray is marched through the field's box with a random
 offset, accumulating optical depth from piecewise-constant extinction (midpoint of each
@@ -21,12 +25,9 @@ from numba import njit, prange
 
 from ..config import JIT, JIT_PARALLEL
 from .rng import uniform
-from .geometry import (CELL, INV_CELL, box_interval, build_macrocells, cell_exit, next_segment_after,  # noqa: F401
-                       segment_bounds, to_index, to_index_direction)
+from .geometry import box_interval, cell_exit, next_segment_after, segment_bounds, to_index, to_index_direction
 from .sampling import albedo_at, extinction_at, trilinear_bricked
-from .shading import (ENV_CONSTANT, ENV_IMAGE, ENV_SKY, LIGHT_DIRECTIONAL, LIGHT_POINT, MAX_LIGHTS,  # noqa: F401
-                      SCATTER_GRADED, SCATTER_INTERFACE, SCATTER_MEDIUM, environment_radiance, event_frame, interface_weight, lobe,
-                      sample_lobe)
+from .shading import LIGHT_DIRECTIONAL, environment_radiance, event_frame, interface_weight, lobe, sample_lobe
 
 MAX_EVENTS = 4
 MAX_LEVELS = 2

@@ -173,7 +173,7 @@ class Scene:
         if inside.any():
             return True
         # a box larger than the view can still fill it: test the centre ray against the box
-        from .._kernels.integrate import box_interval, to_index, to_index_direction
+        from .._kernels.geometry import box_interval, to_index, to_index_direction
 
         arrays = self.volume.to_arrays()
         origin = to_index(arrays.world_to_index, *self.camera.position)
