@@ -41,6 +41,11 @@ def load_volume(path, *, spacing_mm=None, origin_mm=None, budget_bytes: int | No
     path, member = split_member(str(path))
     budget = memory_budget() if budget_bytes is None else int(budget_bytes)
     suffix = path.suffix.lower()
+    if member is not None and not is_chunked(path):
+        raise UserError(f"{path}::{member}: '::' names an array inside a .zarr or .h5 store only")
+    given_geometry = spacing_mm is not None or origin_mm is not None
+    if given_geometry and (suffix in (".nrrd", ".nhdr", ".dcm", ".ima") or is_nifti(path)):
+        raise UserError(f"{path}: spacing_mm and origin_mm do not apply: the file carries its own geometry")
     own_geometry = None                 # the format that carries its own geometry (no spacing_mm / origin_mm)
     if suffix in (".nrrd", ".nhdr"):
         from .nrrd import read_nrrd
@@ -65,10 +70,8 @@ def load_volume(path, *, spacing_mm=None, origin_mm=None, budget_bytes: int | No
     else:
         raise UserError(f"{path}: unknown volume format {path.suffix!r}; use .nrrd, .nhdr, .npy, .nii, .nii.gz, "
                         ".tif/.tiff (or a folder of them), a DICOM series folder, .zarr or .h5 (STORE::ARRAY)")
-    if member is not None and not is_chunked(path):
-        raise UserError(f"{path}::{member}: '::' names an array inside a .zarr or .h5 store only")
     data, origin, directions, dtype, space = raw.data, raw.origin, raw.directions, raw.dtype, raw.space
-    if own_geometry is not None and (spacing_mm is not None or origin_mm is not None):
+    if own_geometry is not None and given_geometry:
         raise UserError(f"{path}: spacing_mm and origin_mm do not apply: {own_geometry} carries its own geometry")
     if spacing_mm is not None or own_geometry is None:
         spacing = np.linalg.norm(directions, axis=1) if spacing_mm is None else np.asarray(spacing_mm, dtype=np.float64)
