@@ -58,7 +58,8 @@ def read_nifti(path: Path, budget: int) -> RawVolume:
     slope, intercept = header.get_slope_inter()
     rescaled = slope is not None and (slope != 1 or (intercept or 0) != 0)
     data = np.asarray(data, dtype=np.float32 if rescaled else data.dtype.newbyteorder("="))
-    details = (("affine", which), ("length unit", f"{unit} (x {scale:g} to mm)"))
+    details = (("affine", which), ("length unit", "not given in the header: taken as mm" if unit == "unknown" else
+                                   "mm" if unit == "mm" else f"{unit} (x {scale:g} to mm)"))
     if rescaled:
         details += (("rescale", f"value = stored x {slope:g} + {intercept or 0:g}"),)
     return RawVolume(data=data, origin=affine[:3, 3] * scale, directions=affine[:3, :3].T * scale, dtype=dtype,
