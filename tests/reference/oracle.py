@@ -81,6 +81,10 @@ class Oracle:
         if self.environment is not None and self.environment["kind"] == "image":
             self.env_image = read_latlong(_resolve(base, self.environment["path"]))
         r = scene["render"]
+        if int(r.get("bounces", 1)) != 1 or r.get("estimator", "march") != "march":
+            raise ValueError("the oracle implements the README's default estimator only (bounces = 1, estimator = march)")
+        if "emission" in table or "temperature" in table:
+            raise ValueError("the oracle does not model emission")
         self.events, self.step, self.g = int(r["events"]), float(r["step_mm"]), float(r["phase_g"])
         self.scattering = r["scattering"]
         mean_spacing = float(np.mean(np.linalg.norm(self.matrix, axis=0)))
