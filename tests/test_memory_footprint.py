@@ -1,0 +1,50 @@
+"""The memory check counts what a render really holds (README, "Bringing your own volume").
+
+Peak resident memory (the operating system's VmHWM) of two renders of smooth uint8 volumes, 320^3 and 400^3 voxels, in
+fresh processes: their difference over the difference in voxels is the per-voxel footprint, free of the
+runtime's fixed share. Expected from the layout: the float32 field (4 bytes) and its bricks (9^3 samples of
+float32 per 8^3 voxels, 5.7 bytes); the budget counts the file's bytes plus ``BYTES_PER_VOXEL`` and so must not
+count less.
+"""
+
+import subprocess
+import sys
+import textwrap
+
+import pytest
+
+from tracer.volumes.volume import BYTES_PER_VOXEL
+
+SCRIPT = textwrap.dedent('''
+    import sys, numpy as np
+    n = int(sys.argv[1]); folder = sys.argv[2]
+    x = np.linspace(-1, 1, n, dtype=np.float32)
+    field = (np.exp(-4 * (x[:, None, None] ** 2 + x[None, :, None] ** 2 + x[None, None, :] ** 2)) * 200).astype(np.uint8)
+    np.save(f"{folder}/v{n}.npy", field)
+    del field, x
+    import tracer
+    with open(f"{folder}/s{n}.toml", "w") as handle:
+        handle.write(f'[volume]\\npath = "{folder}/v{n}.npy"\\n[transfer_function]\\nopacity = [[0.0, 0.0], [255.0, 0.5]]\\n'
+                     'color = [[0.0, [0.8, 0.8, 0.8]]]\\n[camera]\\nwidth = 32\\nheight = 32\\n[render]\\nspp = 1\\n')
+    tracer.render(tracer.load_scene(f"{folder}/s{n}.toml"))
+    print([int(line.split()[1]) for line in open("/proc/self/status") if line.startswith("VmHWM")][0] * 1024)
+''')
+
+
+def peak_bytes(n, folder) -> int:
+    result = subprocess.run([sys.executable, "-c", SCRIPT, str(n), str(folder)], capture_output=True, text=True,
+                            check=True)
+    return int(result.stdout.strip().splitlines()[-1])
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="reads /proc/self/status")
+def test_per_voxel_footprint_is_what_the_budget_counts(tmp_path):
+    small, large = 320, 400
+    peak_bytes(16, tmp_path)                     # fills the kernel cache: compiling's memory must not count below
+    small_peak = peak_bytes(small, tmp_path)
+    per_voxel = (peak_bytes(large, tmp_path) - small_peak) / (large ** 3 - small ** 3)
+    bricks = (-(-(large - 1) // 8)) ** 3 * 9 ** 3 * 4 / large ** 3
+    expected = 4 + bricks                                               # 9.7 bytes per voxel
+    assert 0.8 * expected < per_voxel < 1.1 * expected, per_voxel      # measured 9.3
+    assert 1 + BYTES_PER_VOXEL >= per_voxel                             # the budget never counts less
