@@ -2,9 +2,8 @@
 
 Peak resident memory (the operating system's VmHWM) of two renders of smooth uint8 volumes, 320^3 and 400^3 voxels, in
 fresh processes: their difference over the difference in voxels is the per-voxel footprint, free of the
-runtime's fixed share. Expected from the layout: the float32 field (4 bytes) and its bricks (9^3 samples of
-float32 per 8^3 voxels, 5.7 bytes); the budget counts the file's bytes plus ``BYTES_PER_VOXEL`` and so must not
-count less.
+runtime's fixed share. Expected from the layout: 8-bit data is kept as it is (1 byte) beside its bricks (9^3
+samples per 8^3 voxels, 1.42 bytes); the budget counts ``bytes_per_voxel`` and so must not count less.
 """
 
 import subprocess
@@ -13,14 +12,18 @@ import textwrap
 
 import pytest
 
-from tracer.volumes.volume import BYTES_PER_VOXEL
+import numpy as np
+
+from tracer.volumes.volume import bytes_per_voxel
 
 SCRIPT = textwrap.dedent('''
     import sys, numpy as np
     n = int(sys.argv[1]); folder = sys.argv[2]
     x = np.linspace(-1, 1, n, dtype=np.float32)
-    field = (np.exp(-4 * (x[:, None, None] ** 2 + x[None, :, None] ** 2 + x[None, None, :] ** 2)) * 200).astype(np.uint8)
-    np.save(f"{folder}/v{n}.npy", field)
+    field = np.lib.format.open_memmap(f"{folder}/v{n}.npy", mode="w+", dtype=np.uint8, shape=(n, n, n))
+    for k in range(n):           # plane by plane: no full-size float temporary sets the peak
+        field[:, :, k] = (np.exp(-4 * (x[:, None] ** 2 + x[None, :] ** 2 + x[k] ** 2)) * 200).astype(np.uint8)
+    field.flush()
     del field, x
     import tracer
     with open(f"{folder}/s{n}.toml", "w") as handle:
@@ -44,7 +47,7 @@ def test_per_voxel_footprint_is_what_the_budget_counts(tmp_path):
     peak_bytes(16, tmp_path)                     # fills the kernel cache: compiling's memory must not count below
     small_peak = peak_bytes(small, tmp_path)
     per_voxel = (peak_bytes(large, tmp_path) - small_peak) / (large ** 3 - small ** 3)
-    bricks = (-(-(large - 1) // 8)) ** 3 * 9 ** 3 * 4 / large ** 3
-    expected = 4 + bricks                                               # 9.7 bytes per voxel
-    assert 0.8 * expected < per_voxel < 1.1 * expected, per_voxel      # measured 9.3
-    assert 1 + BYTES_PER_VOXEL >= per_voxel                             # the budget never counts less
+    bricks = (-(-(large - 1) // 8)) ** 3 * 9 ** 3 / large ** 3
+    expected = 1 + bricks                                               # 2.42 bytes per voxel
+    assert 0.8 * expected < per_voxel < 1.1 * expected, per_voxel
+    assert bytes_per_voxel(np.uint8) >= per_voxel                      # the budget never counts less

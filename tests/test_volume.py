@@ -45,10 +45,14 @@ def test_spacings_field_gives_axis_aligned_anisotropic_grid(tmp_path):
 
 
 @pytest.mark.parametrize("dtype", ["int8", "uint8", "int16", "uint16", "int32", "uint32", "float32", "float64"])
-def test_every_supported_dtype_loads_as_float32(tmp_path, dtype):
+def test_every_supported_dtype_loads_exactly(tmp_path, dtype):
+    """8- and 16-bit integers are kept as they are (exact in float32, a quarter to a half of the memory); the
+    other types are held as float32."""
     data = (np.arange(24).reshape(2, 3, 4) - 5).astype(dtype) if dtype[0] != "u" else np.arange(24, dtype=dtype).reshape(2, 3, 4)
     volume = load_volume(write(tmp_path / f"v_{dtype}.nrrd", data))
-    assert volume.data.dtype == np.float32 and volume.data.flags.c_contiguous
+    kept = dtype in ("int8", "uint8", "int16", "uint16")
+    assert volume.data.dtype == (np.dtype(dtype) if kept else np.float32) and volume.data.flags.c_contiguous
+    assert volume.bricks.dtype == volume.data.dtype
     assert volume.source_dtype == dtype
     np.testing.assert_array_equal(volume.data, data.astype(np.float32))
 

@@ -98,6 +98,8 @@ def build_dataset(plan_path, out_dir, *, resume: bool = False, workers: int | No
 
         run_on_cluster(plan, todo, plan_arguments, out_dir, finished, workers=workers, scheduler=scheduler,
                        dashboard=dashboard, numba_threads=numba_threads)
+        # a worker killed while writing leaves its temporary file; Dask reran the task under another name
+        _remove_partials(out_dir)
     seconds = time.perf_counter() - started
     return summarize(plan, list(records.values()), done_before, seconds)
 

@@ -38,7 +38,7 @@ def _finish(path, array, label, budget, spacing=(1.0, 1.0, 1.0), axes_order=None
     name = np.dtype(array.dtype).newbyteorder("=").name
     if name not in ACCEPTED_DTYPES:
         raise UserError(f"{path}: {label} has dtype {array.dtype}, not one of {', '.join(ACCEPTED_DTYPES)}")
-    check_budget(path, array.shape, np.dtype(array.dtype).itemsize, budget)
+    check_budget(path, array.shape, array.dtype, budget)
     data = np.asarray(array[...])
     if axes_order is not None:
         data = data.transpose(axes_order)

@@ -108,7 +108,7 @@ def read_dicom_series(path: Path, budget: int) -> RawVolume:
                             f"others are {median:.3f} mm apart (about {round(steps[k] / median) - 1} missing)")
         raise UserError(f"{path}: uneven slice spacing: (0020,0032) Image Position (Patient) steps from {steps.min():.3f} to {steps.max():.3f} mm "
                         f"(tolerance {max(SPACING_TOLERANCE * median, 0.01):.3f} mm)")
-    check_budget(path, (columns, rows, len(items)), 4, budget)
+    check_budget(path, (columns, rows, len(items)), np.float32, budget)
 
     data = np.empty((columns, rows, len(items)), np.float32)
     slopes, intercepts = set(), set()

@@ -42,7 +42,7 @@ def read_nifti(path: Path, budget: int) -> RawVolume:
     dtype = np.dtype(image.get_data_dtype()).newbyteorder("=").name
     if dtype not in ACCEPTED_DTYPES:
         raise UserError(f"{path}: dtype {dtype} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
-    check_budget(path, shape, np.dtype(dtype).itemsize, budget)
+    check_budget(path, shape, dtype, budget)
     header = image.header
     sform_code, qform_code = int(header["sform_code"]), int(header["qform_code"])
     if sform_code > 0:

@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import UserError
-from .volume import ACCEPTED_DTYPES, BYTES_PER_VOXEL
+from .volume import ACCEPTED_DTYPES, bytes_per_voxel
 
 
 def read_npy(path: Path, budget: int) -> tuple[np.ndarray, str]:
@@ -24,7 +24,7 @@ def read_npy(path: Path, budget: int) -> tuple[np.ndarray, str]:
     name = mapped.dtype.newbyteorder("=").name
     if name not in ACCEPTED_DTYPES:
         raise UserError(f"{path}: dtype {mapped.dtype} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
-    n_bytes = mapped.size * (mapped.dtype.itemsize + BYTES_PER_VOXEL)
+    n_bytes = int(mapped.size * bytes_per_voxel(mapped.dtype))
     if n_bytes > budget:
         raise UserError(
             f"{path}: shape {mapped.shape} needs {n_bytes / 2**20:.0f} MiB, over the memory budget of "

@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import UserError
-from .volume import ACCEPTED_DTYPES, BYTES_PER_VOXEL, RawVolume
+from .volume import ACCEPTED_DTYPES, RawVolume, bytes_per_voxel
 
 ENCODINGS = ("raw", "gzip", "gz", "bzip2", "bz2", "ascii", "text", "txt")
 
@@ -61,7 +61,7 @@ def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
     if dtype.name.replace(">", "").replace("<", "") not in ACCEPTED_DTYPES:
         raise UserError(f"{path}: type: {type_name!r} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
 
-    n_bytes = int(np.prod(sizes)) * (dtype.itemsize + BYTES_PER_VOXEL)
+    n_bytes = int(np.prod(sizes) * bytes_per_voxel(dtype))
     if n_bytes > budget_bytes:
         raise UserError(
             f"{path}: sizes: {sizes} needs {n_bytes / 2**20:.0f} MiB, over the memory budget of "

@@ -45,7 +45,7 @@ def read_tiff(path: Path, budget: int) -> RawVolume:
             shape2d = first.pages[0].shape
             dtype = np.dtype(first.pages[0].dtype)
             first.close()
-            check_budget(path, (len(pages),) + tuple(shape2d), dtype.itemsize, budget)
+            check_budget(path, (len(pages),) + tuple(shape2d), dtype, budget)
             slices = []
             for page in pages:
                 image = tifffile.imread(str(page))
@@ -56,7 +56,7 @@ def read_tiff(path: Path, budget: int) -> RawVolume:
         else:
             with tifffile.TiffFile(str(path)) as handle:
                 series = handle.series[0]
-                check_budget(path, series.shape, np.dtype(series.dtype).itemsize, budget)
+                check_budget(path, series.shape, series.dtype, budget)
                 stack = series.asarray()
                 calibration = _calibration(handle)
     except UserError:
