@@ -51,3 +51,21 @@ def test_per_voxel_footprint_is_what_the_budget_counts(tmp_path):
     expected = 1 + bricks                                               # 2.42 bytes per voxel
     assert 0.8 * expected < per_voxel < 1.1 * expected, per_voxel
     assert bytes_per_voxel(np.uint8) >= per_voxel                      # the budget never counts less
+
+
+@pytest.mark.parametrize("dtype, side, megabytes", [("uint8", 1500, None), ("int16", 1190, None), ("float32", 845, None),
+                                                   ("uint8", 2030, 20000), ("int16", 1610, 20000)])
+def test_the_largest_volumes_the_readme_names_pass_the_check(dtype, side, megabytes, monkeypatch):
+    """README, "Bringing your own volume": by default 1500^3 uint8, 1190^3 int16, 845^3 float32 load, and with
+    TRACER_MEMORY_BUDGET_MB=20000 2030^3 uint8 and 1610^3 int16; 2% more per axis does not."""
+    from tracer.config import memory_budget
+    from tracer.errors import UserError
+    from tracer.volumes.volume import check_budget
+
+    if megabytes is None:
+        monkeypatch.delenv("TRACER_MEMORY_BUDGET_MB", raising=False)
+    else:
+        monkeypatch.setenv("TRACER_MEMORY_BUDGET_MB", str(megabytes))
+    check_budget("v", (side,) * 3, dtype, memory_budget())
+    with pytest.raises(UserError, match="over the memory budget"):
+        check_budget("v", (int(side * 1.02),) * 3, dtype, memory_budget())
