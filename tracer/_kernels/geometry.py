@@ -88,26 +88,32 @@ def build_macrocells(field, extinction, lookup, size, out):
 
 
 @njit(**JIT)
+def cell_faces_exit(a, b, c, size, ox, oy, oz, ix, iy, iz):
+    """The ray parameter where the ray o + t i leaves cell (a, b, c) of a grid of ``size``-voxel cells."""
+    t_exit = np.inf
+    if ix > 0.0:
+        t_exit = min(t_exit, ((a + 1) * size - ox) / ix)
+    elif ix < 0.0:
+        t_exit = min(t_exit, (a * size - ox) / ix)
+    if iy > 0.0:
+        t_exit = min(t_exit, ((b + 1) * size - oy) / iy)
+    elif iy < 0.0:
+        t_exit = min(t_exit, (b * size - oy) / iy)
+    if iz > 0.0:
+        t_exit = min(t_exit, ((c + 1) * size - oz) / iz)
+    elif iz < 0.0:
+        t_exit = min(t_exit, (c * size - oz) / iz)
+    return t_exit
+
+
+@njit(**JIT)
 def cell_exit(cells, ox, oy, oz, ix, iy, iz, px, py, pz):
     """For index point p on the ray o + t i: whether its macrocell is empty, and the ray parameter
     where the ray leaves that cell."""
     a = min(int(px * INV_CELL), cells.shape[0] - 1)
     b = min(int(py * INV_CELL), cells.shape[1] - 1)
     c = min(int(pz * INV_CELL), cells.shape[2] - 1)
-    t_exit = np.inf
-    if ix > 0.0:
-        t_exit = min(t_exit, ((a + 1) * CELL - ox) / ix)
-    elif ix < 0.0:
-        t_exit = min(t_exit, (a * CELL - ox) / ix)
-    if iy > 0.0:
-        t_exit = min(t_exit, ((b + 1) * CELL - oy) / iy)
-    elif iy < 0.0:
-        t_exit = min(t_exit, (b * CELL - oy) / iy)
-    if iz > 0.0:
-        t_exit = min(t_exit, ((c + 1) * CELL - oz) / iz)
-    elif iz < 0.0:
-        t_exit = min(t_exit, (c * CELL - oz) / iz)
-    return cells[a, b, c] <= 0.0, t_exit
+    return cells[a, b, c] <= 0.0, cell_faces_exit(a, b, c, CELL, ox, oy, oz, ix, iy, iz)
 
 
 @njit(**JIT)

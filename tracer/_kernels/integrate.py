@@ -27,7 +27,8 @@ from ..config import JIT, JIT_PARALLEL
 from .rng import uniform
 from .geometry import box_interval, cell_exit, next_segment_after, segment_bounds, to_index, to_index_direction
 from .sampling import albedo_at, extinction_at, trilinear_bricked
-from .shading import LIGHT_DIRECTIONAL, environment_radiance, event_frame, interface_weight, lobe, sample_lobe
+from .shading import (background_along, environment_radiance, event_frame, interface_weight, light_toward, lobe,
+                      sample_lobe)
 
 MAX_EVENTS = 4
 MAX_LEVELS = 2
@@ -112,18 +113,9 @@ def marched_direct_light(bricks, shape, cells, world_to_index, extinction, looku
     s1 = 0.0
     s2 = 0.0
     for light in range(lights.shape[0]):
-        kind = int(lights[light, 0])
-        if kind == LIGHT_DIRECTIONAL:
-            lx, ly, lz = lights[light, 1], lights[light, 2], lights[light, 3]
-            distance = np.inf
-            falloff = 1.0
-        else:
-            lx, ly, lz = lights[light, 1] - px, lights[light, 2] - py, lights[light, 3] - pz
-            distance = math.sqrt(lx * lx + ly * ly + lz * lz)
-            if distance <= 0.0:
-                continue
-            lx, ly, lz = lx / distance, ly / distance, lz / distance
-            falloff = 1.0 / (distance * distance)
+        lx, ly, lz, distance, falloff = light_toward(lights, light, px, py, pz)
+        if falloff <= 0.0:
+            continue
         f = lobe(weight, g, nx, ny, nz, dx, dy, dz, lx, ly, lz)
         if f <= 0.0:
             continue
@@ -302,11 +294,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
     albedo, extinction, lookup, _emission, _emitting = transfer
     pixel = row * width + col
     px, py, pz, dx, dy, dz = camera_ray(camera, seed, pixel, sample, row, col, width, height)
-    # background seen along the ray
-    if background_is_env:
-        b0, b1, b2 = environment_radiance(env_kind, env_colors, env_image, dx, dy, dz)
-    else:
-        b0, b1, b2 = background[0], background[1], background[2]
+    b0, b1, b2 = background_along(background_is_env, env_kind, env_colors, env_image, background, dx, dy, dz)
     tau, glow0, glow1, glow2 = march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixel, sample,
                                                 px, py, pz, dx, dy, dz, True, skip, counts, row, scratch)
     alpha = -math.expm1(-tau)

@@ -2,6 +2,7 @@
 
 import math
 
+import numpy as np
 from numba import njit
 
 from ..config import JIT
@@ -68,6 +69,27 @@ def environment_radiance(env_kind, env_colors, env_image, dx, dy, dz):
             out1 += wt * env_image[rr, cc, 1]
             out2 += wt * env_image[rr, cc, 2]
     return out0, out1, out2
+
+
+@njit(**JIT)
+def background_along(background_is_env, env_kind, env_colors, env_image, background, dx, dy, dz):
+    """What a camera ray along d sees past the volume: the environment, or the scene's background colour."""
+    if background_is_env:
+        return environment_radiance(env_kind, env_colors, env_image, dx, dy, dz)
+    return background[0], background[1], background[2]
+
+
+@njit(**JIT)
+def light_toward(lights, light, px, py, pz):
+    """Unit direction from p toward light ``light``, its distance (inf for a directional light) and the
+    falloff (1, or 1 / r^2 for a point light; 0 for a point light at p itself, which delivers nothing)."""
+    if lights[light, 0] == LIGHT_DIRECTIONAL:
+        return lights[light, 1], lights[light, 2], lights[light, 3], np.inf, 1.0
+    lx, ly, lz = lights[light, 1] - px, lights[light, 2] - py, lights[light, 3] - pz
+    distance = math.sqrt(lx * lx + ly * ly + lz * lz)
+    if distance <= 0.0:
+        return 0.0, 0.0, 1.0, 0.0, 0.0
+    return lx / distance, ly / distance, lz / distance, distance, 1.0 / (distance * distance)
 
 
 @njit(**JIT)

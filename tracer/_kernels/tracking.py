@@ -20,10 +20,10 @@ import numpy as np
 from numba import njit
 
 from ..config import JIT
-from .geometry import INV_TRACK_CELL, TRACK_CELL, box_interval, to_index, to_index_direction
+from .geometry import INV_TRACK_CELL, TRACK_CELL, box_interval, cell_faces_exit, to_index, to_index_direction
 from .rng import path_key, uniform, uniform_at
 from .sampling import albedo_at, extinction_at, trilinear_bricked
-from .shading import (LIGHT_DIRECTIONAL, MAX_LIGHTS, environment_radiance, event_frame, interface_weight, lobe,
+from .shading import (MAX_LIGHTS, environment_radiance, event_frame, interface_weight, light_toward, lobe,
                       sample_lobe)
 
 MAX_CHAINS = 5                    # MAX_EVENTS march chains + the tracked camera path
@@ -56,20 +56,7 @@ def cell_span(cells, ox, oy, oz, ix, iy, iz, t):
     a = min(max(int((ox + s * ix) * INV_TRACK_CELL), 0), cells.shape[0] - 1)
     b = min(max(int((oy + s * iy) * INV_TRACK_CELL), 0), cells.shape[1] - 1)
     c = min(max(int((oz + s * iz) * INV_TRACK_CELL), 0), cells.shape[2] - 1)
-    t_exit = np.inf
-    if ix > 0.0:
-        t_exit = min(t_exit, ((a + 1) * TRACK_CELL - ox) / ix)
-    elif ix < 0.0:
-        t_exit = min(t_exit, (a * TRACK_CELL - ox) / ix)
-    if iy > 0.0:
-        t_exit = min(t_exit, ((b + 1) * TRACK_CELL - oy) / iy)
-    elif iy < 0.0:
-        t_exit = min(t_exit, (b * TRACK_CELL - oy) / iy)
-    if iz > 0.0:
-        t_exit = min(t_exit, ((c + 1) * TRACK_CELL - oz) / iz)
-    elif iz < 0.0:
-        t_exit = min(t_exit, (c * TRACK_CELL - oz) / iz)
-    return cells[a, b, c], max(t_exit, s)
+    return cells[a, b, c], max(cell_faces_exit(a, b, c, TRACK_CELL, ox, oy, oz, ix, iy, iz), s)
 
 
 @njit(**JIT)
@@ -184,17 +171,9 @@ def tracked_direct_light(bricks, shape, cells, world_to_index, extinction, looku
     s1 = 0.0
     s2 = 0.0
     for light in range(lights.shape[0]):
-        if lights[light, 0] == LIGHT_DIRECTIONAL:
-            lx, ly, lz = lights[light, 1], lights[light, 2], lights[light, 3]
-            distance = np.inf
-            falloff = 1.0
-        else:
-            lx, ly, lz = lights[light, 1] - px, lights[light, 2] - py, lights[light, 3] - pz
-            distance = math.sqrt(lx * lx + ly * ly + lz * lz)
-            if distance <= 0.0:
-                continue
-            lx, ly, lz = lx / distance, ly / distance, lz / distance
-            falloff = 1.0 / (distance * distance)
+        lx, ly, lz, distance, falloff = light_toward(lights, light, px, py, pz)
+        if falloff <= 0.0:
+            continue
         f = lobe(weight, g, nx, ny, nz, dx, dy, dz, lx, ly, lz)
         if f <= 0.0:
             continue

@@ -20,7 +20,7 @@ from ..config import JIT, JIT_PARALLEL
 from .integrate import (BLOCK, DIM_EVENT, DIM_EVENT_STRIDE, MAX_EVENTS, MAX_LEVELS, N_BASE_CHANNELS, SCRATCH, add_feature,
                         add_levels, add_radiance, camera_ray, march_camera_ray, marched_direct_light, row_stride)
 from .sampling import albedo_at
-from .shading import environment_radiance, event_frame, interface_weight, sample_lobe
+from .shading import background_along, event_frame, interface_weight, sample_lobe
 from .tracking import follow_path, tracked_camera_path
 
 ESTIMATOR_MARCH = 0
@@ -37,10 +37,7 @@ def trace_transport(volume, transfer, cells, camera, lights, env_kind, env_color
     track = estimator == ESTIMATOR_TRACK
     pixel = row * width + col
     px, py, pz, dx, dy, dz = camera_ray(camera, seed, pixel, sample, row, col, width, height)
-    if background_is_env:
-        b0, b1, b2 = environment_radiance(env_kind, env_colors, env_image, dx, dy, dz)
-    else:
-        b0, b1, b2 = background[0], background[1], background[2]
+    b0, b1, b2 = background_along(background_is_env, env_kind, env_colors, env_image, background, dx, dy, dz)
     tau, glow0, glow1, glow2 = march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixel, sample,
                                                 px, py, pz, dx, dy, dz, not track, skip, counts, row, scratch)
     alpha = -math.expm1(-tau)
