@@ -147,9 +147,11 @@ def convert(
     target: Annotated[Path, typer.Argument(help="The NRRD file to write (.nrrd, gzip-compressed).")],
     spacing_mm: Annotated[Optional[str], typer.Option(help="For .npy, TIFF, zarr and HDF5: voxel spacing 'sx,sy,sz' in mm.")] = None,
 ):
-    """Write any readable volume as NRRD with its world geometry (origin, directions, space), to check it
-    elsewhere or to skip the conversion next time. Whole-numbered values (stored integers, Hounsfield units
-    after a DICOM rescale) are written as the smallest integer type that holds them, others as float32."""
+    """Write any readable volume (NIfTI, DICOM series, TIFF, zarr, HDF5, ...) as NRRD with its world geometry.
+
+    Origin, directions and space are kept, so the file can be checked in another program or loaded without
+    converting again. Whole-numbered values (stored integers, Hounsfield units after a DICOM rescale) are
+    written as the smallest integer type that holds them, others as float32."""
     from ..errors import UserError
     from ..volumes import load_volume
     from ..volumes.nrrd import write_nrrd
