@@ -205,7 +205,7 @@ def _damaged_tiff(tmp_path):
 
 
 BAD_VOLUMES = {
-    "truncated data": (_gzip_truncated, "data: cannot read the voxels"),
+    "truncated data": (_gzip_truncated, "data: the file ends before its sizes"),
     "unknown encoding": (_unknown_encoding, "encoding"),
     "unknown type": (_unknown_type, "type"),
     "missing endian": (_missing_endian, "endian: Header is missing required field: endian"),

@@ -6,7 +6,7 @@ import numpy as np
 from numba import njit, prange
 
 from ..config import JIT, JIT_PARALLEL
-from .sampling import table_position
+from .sampling import BRICK_MASK, BRICK_SHIFT, table_position
 
 #: Macrocells span this many voxel intervals per axis.
 CELL = 8
@@ -55,28 +55,33 @@ def to_index_direction(world_to_index, dx, dy, dz):
 
 
 @njit(**JIT_PARALLEL)
-def build_macrocells(field, extinction, lookup, size, out):
-    """Largest extinction any point of each macrocell can take.
+def build_macrocells(bricks, extinction, lookup, size, out):
+    """Largest extinction any point of each macrocell can take, read from the bricked field.
 
-    field (nx, ny, nz) float32; extinction (n,) float32 table; lookup (2,) float64;
-    size: voxel intervals per cell (CELL for the march's skipping, TRACK_CELL for tracking);
-    out (ceil((nx-1)/size), ...) float32. Cell c covers voxel indices [size c, size c + size]
-    (the trilinear field inside it is a convex combination of those voxels); its value is the
-    largest table entry over the table interval spanning the cell's [min, max] value, so a cell
-    holding 0 has zero extinction everywhere inside it, exactly.
+    bricks (gx, gy, gz, BRICK+1, BRICK+1, BRICK+1) (see ``sampling.make_bricks``); extinction (n,)
+    float32 table; lookup (2,) float64; size: voxel intervals per cell, a divisor of BRICK (CELL for
+    the march's skipping, TRACK_CELL for tracking); out (ceil((nx-1)/size), ...) float32. Cell c
+    covers voxel indices [size c, size c + size] (the trilinear field inside it is a convex
+    combination of those voxels), all inside one brick (past the field's end the brick repeats its
+    last voxel, which changes no minimum or maximum); its value is the largest table entry over the
+    table interval spanning the cell's [min, max] value, so a cell holding 0 has zero extinction
+    everywhere inside it, exactly.
     """
-    nx, ny, nz = field.shape
     cx, cy, cz = out.shape
     n_entries = extinction.shape[0]
     for a in prange(cx):
+        brick_a, i0 = (a * size) >> BRICK_SHIFT, (a * size) & BRICK_MASK
         for b in range(cy):
+            brick_b, j0 = (b * size) >> BRICK_SHIFT, (b * size) & BRICK_MASK
             for c in range(cz):
+                brick_c, k0 = (c * size) >> BRICK_SHIFT, (c * size) & BRICK_MASK
+                brick = bricks[brick_a, brick_b, brick_c]
                 low = np.inf
                 high = -np.inf
-                for i in range(a * size, min(a * size + size, nx - 1) + 1):
-                    for j in range(b * size, min(b * size + size, ny - 1) + 1):
-                        for k in range(c * size, min(c * size + size, nz - 1) + 1):
-                            value = field[i, j, k]
+                for i in range(i0, i0 + size + 1):
+                    for j in range(j0, j0 + size + 1):
+                        for k in range(k0, k0 + size + 1):
+                            value = brick[i, j, k]
                             low = min(low, value)
                             high = max(high, value)
                 e0 = int(math.floor(table_position(lookup, n_entries, low)))

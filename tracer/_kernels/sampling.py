@@ -6,6 +6,8 @@ and the field is trilinear between them. Callers keep points inside [0, n-1] per
 
 import math
 
+import numpy as np
+
 from numba import njit, prange
 
 from ..config import JIT, JIT_PARALLEL
@@ -73,6 +75,44 @@ def make_bricks(field, out):
                         for k in range(BRICK + 1):
                             out[a, b, c, i, j, k] = field[min(a * BRICK + i, nx - 1), min(b * BRICK + j, ny - 1),
                                                           min(c * BRICK + k, nz - 1)]
+
+
+@njit(**JIT_PARALLEL)
+def fill_brick_layer(slab, axis, layer, shape, out):
+    """Fill the bricks of index ``layer`` along ``axis`` from ``slab``, a part of the field: the planes
+    ``[BRICK layer, min(BRICK layer + BRICK, n - 1)]`` along ``axis`` (n = ``shape[axis]``) and the whole
+    extent along the other two, in [x, y, z] order. Same samples as :func:`make_bricks` writes there,
+    so a field read slab by slab gives the same bricks as the whole field."""
+    gx, gy, gz = out.shape[0], out.shape[1], out.shape[2]
+    first = layer * BRICK
+    counts = (1 if axis == 0 else gx, 1 if axis == 1 else gy, 1 if axis == 2 else gz)
+    for flat_u in prange(counts[0] * counts[1] * counts[2]):
+        flat = np.int64(flat_u)
+        a = layer if axis == 0 else flat // (counts[1] * counts[2])
+        b = layer if axis == 1 else (flat // counts[2]) % counts[1]
+        c = layer if axis == 2 else flat % counts[2]
+        for i in range(BRICK + 1):
+            x = min(a * BRICK + i, shape[0] - 1) - (first if axis == 0 else 0)
+            for j in range(BRICK + 1):
+                y = min(b * BRICK + j, shape[1] - 1) - (first if axis == 1 else 0)
+                for k in range(BRICK + 1):
+                    z = min(c * BRICK + k, shape[2] - 1) - (first if axis == 2 else 0)
+                    out[a, b, c, i, j, k] = slab[x, y, z]
+
+
+@njit(**JIT_PARALLEL)
+def unbrick(bricks, out):
+    """The plain field (nx, ny, nz) back from its bricks (the inverse of :func:`make_bricks`)."""
+    nx, ny, nz = out.shape
+    gx, gy, gz = bricks.shape[0], bricks.shape[1], bricks.shape[2]
+    for xu in prange(nx):
+        x = np.int64(xu)                       # prange's index may be unsigned; keep the arithmetic signed
+        a = min(x >> BRICK_SHIFT, gx - 1)
+        for y in range(ny):
+            b = min(y >> BRICK_SHIFT, gy - 1)
+            for z in range(nz):
+                c = min(z >> BRICK_SHIFT, gz - 1)
+                out[x, y, z] = bricks[a, b, c, x - a * BRICK, y - b * BRICK, z - c * BRICK]
 
 
 @njit(**JIT)

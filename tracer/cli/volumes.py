@@ -53,7 +53,7 @@ def info(
     for label, text in loaded.details:
         out(f"  {escape(label):<12s} {escape(text)}")
     out(f"  shape        {' x '.join(map(str, summary.shape))} voxels  \\[x, y, z]")
-    kept = loaded.data.dtype.name != "float32"
+    kept = loaded.dtype.name != "float32"
     out(f"  dtype        {summary.dtype}" + (" (kept as it is: every value exact in float32)" if kept else
                                              " (held as float32)"))
     out(f"  spacing      {' x '.join(f'{s:.4g}' for s in summary.spacing_mm)} mm")
@@ -61,8 +61,7 @@ def info(
     out(f"  origin       ({', '.join(f'{o:.4g}' for o in summary.origin_mm)}) mm")
     out(f"  value range  {summary.value_min:.6g} .. {summary.value_max:.6g}")
     out("  percentiles  " + "  ".join(f"{k} {v:.5g}" for k, v in summary.percentiles.items()))
-    out(f"  memory       {summary.memory_bytes / 2**20:.1f} MiB held, about {summary.memory_bytes * 2.42 / 2**20:.0f} MiB "
-        "with the render's bricked copy")
+    out(f"  memory       {summary.memory_bytes / 2**20:.1f} MiB held (the renderer's bricks; no plain copy is kept)")
     out(f"  NaN/Inf      {summary.n_nonfinite}" + ("  [red](rendering refuses these)[/red]" if summary.n_nonfinite else ""))
     out("  histogram (voxel count, log-scaled bars)")
     counts, edges = summary.histogram_counts, summary.histogram_edges

@@ -24,7 +24,7 @@ def kernel_arguments(scene: Scene, skipping: bool = True, roulette: bool = True)
     volume = scene.volume
     low, high = volume.value_range
     transfer = scene.transfer_function.bake(low, high)
-    cells = macrocells(volume.data, transfer)
+    cells = macrocells(volume, transfer)
     settings = scene.settings
     lights = np.zeros((len(scene.lights), 7))
     for index, light in enumerate(scene.lights):
@@ -56,17 +56,17 @@ def transport_arguments(scene: Scene, arguments: tuple) -> tuple:
     bounces, the estimator's code and tracking's finer majorant grid."""
     from .._kernels.geometry import TRACK_CELL
 
-    track_cells = macrocells(scene.volume.data, arguments[1], TRACK_CELL)
+    track_cells = macrocells(scene.volume, arguments[1], TRACK_CELL)
     return int(scene.settings.bounces), ESTIMATOR_CODES[scene.settings.estimator], track_cells
 
 
-def macrocells(field: np.ndarray, transfer, size: int | None = None) -> np.ndarray:
-    """(ceil((nx-1)/size), ...) float32: the largest extinction inside each size^3-voxel cell (default the
-    march's 8^3 macrocells)."""
+def macrocells(volume, transfer, size: int | None = None) -> np.ndarray:
+    """(ceil((nx-1)/size), ...) float32: the largest extinction inside each size^3-voxel cell of ``volume``
+    (default the march's 8^3 macrocells), read from its bricks."""
     from .._kernels.geometry import CELL, build_macrocells
 
     size = CELL if size is None else int(size)
-    shape = tuple(max(1, -(-(n - 1) // size)) for n in field.shape)
+    shape = tuple(max(1, -(-(n - 1) // size)) for n in volume.shape)
     out = np.empty(shape, np.float32)
-    build_macrocells(field, transfer.extinction, transfer.lookup, size, out)
+    build_macrocells(volume.bricks, transfer.extinction, transfer.lookup, size, out)
     return out

@@ -19,8 +19,10 @@ from .accumulate import Accumulator, _scene_key
 def fingerprint(scene: Scene) -> str:
     import hashlib
 
-    digest = hashlib.sha256(scene.volume.data.tobytes()).hexdigest()
-    return _scene_key({"scene": scene.to_dict()}) + f"|seed={scene.settings.seed}|volume={digest}"
+    bricks = scene.volume.bricks                      # every voxel, without assembling the plain array
+    digest = hashlib.sha256(np.ascontiguousarray(bricks).data).hexdigest()
+    return (_scene_key({"scene": scene.to_dict()}) + f"|seed={scene.settings.seed}|volume={digest}"
+            f"|shape={scene.volume.shape}|dtype={bricks.dtype.name}")
 
 
 def save_checkpoint(path, accumulator: Accumulator, fingerprint: str, seconds: float) -> None:

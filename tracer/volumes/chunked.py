@@ -14,6 +14,7 @@ import numpy as np
 
 from ..errors import UserError
 from .optional import require
+from .bricking import Slabs
 from .volume import ACCEPTED_DTYPES, RawVolume, check_budget
 
 HDF5_SUFFIXES = (".h5", ".hdf5", ".hdf")
@@ -32,18 +33,24 @@ def is_chunked(path: Path) -> bool:
     return path.suffix.lower() in HDF5_SUFFIXES or path.suffix.lower() == ".zarr"
 
 
-def _finish(path, array, label, budget, spacing=(1.0, 1.0, 1.0), axes_order=None, details=()):
+def _slabs(path, array, label, budget, read_planes, axes_order=None) -> tuple[Slabs, str]:
+    """The array as :class:`~tracer.volumes.bricking.Slabs` cut across its first stored axis (chunked stores read
+    ranges of it cheaply); ``read_planes(start, stop)`` reads stored planes [start, stop)."""
     if array.ndim != 3:
         raise UserError(f"{path}: {label} must be 3-D, it has shape {tuple(array.shape)}")
-    name = np.dtype(array.dtype).newbyteorder("=").name
+    dtype = np.dtype(array.dtype)
+    name = dtype.newbyteorder("=").name
     if name not in ACCEPTED_DTYPES:
         raise UserError(f"{path}: {label} has dtype {array.dtype}, not one of {', '.join(ACCEPTED_DTYPES)}")
-    check_budget(path, array.shape, array.dtype, budget)
-    data = np.asarray(array[...])
-    if axes_order is not None:
-        data = data.transpose(axes_order)
-    data = np.ascontiguousarray(data, dtype=data.dtype.newbyteorder("="))
-    return data, name, spacing, details
+    order = (0, 1, 2) if axes_order is None else tuple(axes_order)
+    shape = tuple(int(array.shape[a]) for a in order)
+    check_budget(path, shape, dtype, budget, streamed=True)
+
+    def read(start: int, stop: int) -> np.ndarray:
+        planes = np.asarray(read_planes(start, stop)).transpose(order)
+        return planes.astype(planes.dtype.newbyteorder("="), copy=False)
+
+    return Slabs(shape, dtype.newbyteorder("="), order.index(0), read), name
 
 
 def read_chunked(path: Path, member: str | None, budget: int) -> RawVolume:
@@ -62,8 +69,13 @@ def read_chunked(path: Path, member: str | None, budget: int) -> RawVolume:
                 found = []
                 handle.visititems(lambda name, item: found.append(name) if isinstance(item, h5py.Dataset) else None)
                 raise UserError(f"{path}: no dataset {member!r}; datasets here: {', '.join(found[:8]) or 'none'}")
-            data, name, spacing, details = _finish(path, handle[member], f"dataset {member}", budget)
-        return RawVolume(data=data, origin=np.zeros(3), directions=np.diag(spacing), dtype=name, format="HDF5",
+
+            def read_planes(start, stop):
+                with h5py.File(str(path), "r") as again:
+                    return again[member][start:stop]
+
+            slabs, name = _slabs(path, handle[member], f"dataset {member}", budget, read_planes)
+        return RawVolume(data=slabs, origin=np.zeros(3), directions=np.eye(3), dtype=name, format="HDF5",
                          details=(("dataset", member),))
     zarr = require("zarr", path)
     try:
@@ -76,8 +88,8 @@ def read_chunked(path: Path, member: str | None, budget: int) -> RawVolume:
         except (KeyError, TypeError):
             raise UserError(f"{path}: no array {member!r} in this store") from None
     if hasattr(node, "shape"):
-        data, name, spacing, details = _finish(path, node, f"array {member or '/'}", budget)
-        return RawVolume(data=data, origin=np.zeros(3), directions=np.diag(spacing), dtype=name, format="zarr",
+        slabs, name = _slabs(path, node, f"array {member or '/'}", budget, lambda start, stop: node[start:stop])
+        return RawVolume(data=slabs, origin=np.zeros(3), directions=np.eye(3), dtype=name, format="zarr",
                          details=(("array", member or "/"),))
     multiscales = dict(node.attrs).get("multiscales") or dict(node.attrs).get("ome", {}).get("multiscales")
     if not multiscales:
@@ -95,6 +107,8 @@ def read_chunked(path: Path, member: str | None, budget: int) -> RawVolume:
             scale = [float(s) for s in transform["scale"]]
     order = [axes.index(a) for a in ("x", "y", "z")]
     spacing = tuple(scale[axes.index(a)] * MM_PER.get(units.get(a) or "millimeter", 1.0) for a in ("x", "y", "z"))
-    data, name, _, _ = _finish(path, node[first["path"]], f"scale {first['path']}", budget, axes_order=order)
-    return RawVolume(data=data, origin=np.zeros(3), directions=np.diag(spacing), dtype=name, format="OME-Zarr",
+    array = node[first["path"]]
+    slabs, name = _slabs(path, array, f"scale {first['path']}", budget, lambda start, stop: array[start:stop],
+                         axes_order=order)
+    return RawVolume(data=slabs, origin=np.zeros(3), directions=np.diag(spacing), dtype=name, format="OME-Zarr",
                      details=(("scale", f"first ({first['path']}), spacing {spacing} mm"),))

@@ -9,7 +9,8 @@ import numpy as np
 from ..config import memory_budget
 from ..errors import UserError
 from .npy import read_npy
-from .volume import RawVolume, Volume, count_nonfinite
+from .bricking import Slabs, bricks_from_slabs, whole
+from .volume import RawVolume, Volume
 
 
 def load_volume(path, *, spacing_mm=None, origin_mm=None, budget_bytes: int | None = None,
@@ -52,8 +53,9 @@ def load_volume(path, *, spacing_mm=None, origin_mm=None, budget_bytes: int | No
 
         raw, own_geometry = read_nrrd(path, budget), "NRRD"
     elif suffix == ".npy":
-        data, dtype = read_npy(path, budget)
-        raw = RawVolume(data=data, origin=np.zeros(3), directions=np.eye(3), dtype=dtype, format="npy")
+        slabs, dtype = read_npy(path, budget)
+        raw = RawVolume(data=slabs, origin=np.zeros(3), directions=np.eye(3), dtype=dtype, format="npy")
+        del slabs
     elif is_nifti(path):
         raw, own_geometry = read_nifti(path, budget), "NIfTI"
     elif suffix in TIFF_SUFFIXES or (path.is_dir() and suffix != ".zarr" and tiff_pages(path)):
@@ -70,7 +72,8 @@ def load_volume(path, *, spacing_mm=None, origin_mm=None, budget_bytes: int | No
     else:
         raise UserError(f"{path}: unknown volume format {path.suffix!r}; use .nrrd, .nhdr, .npy, .nii, .nii.gz, "
                         ".tif/.tiff (or a folder of them), a DICOM series folder, .zarr or .h5 (STORE::ARRAY)")
-    data, origin, directions, dtype, space = raw.data, raw.origin, raw.directions, raw.dtype, raw.space
+    origin, directions, dtype, space = raw.origin, raw.directions, raw.dtype, raw.space
+    format_name, details = raw.format, raw.details
     if own_geometry is not None and given_geometry:
         raise UserError(f"{path}: spacing_mm and origin_mm do not apply: {own_geometry} carries its own geometry")
     if spacing_mm is not None or own_geometry is None:
@@ -81,9 +84,12 @@ def load_volume(path, *, spacing_mm=None, origin_mm=None, budget_bytes: int | No
     if origin_mm is not None:
         origin = np.asarray(origin_mm, dtype=np.float64)
 
-    if not allow_nonfinite:
-        bad = count_nonfinite(data)
-        if bad:
-            raise UserError(f"{path}: data: {bad} voxels are NaN or Inf; fix or mask them before rendering")
-    return Volume(data=data, origin=origin, directions=directions, source=str(path) + (f"::{member}" if member else ""),
-                  source_dtype=dtype, space=space, source_format=raw.format, details=raw.details)
+    slabs = raw.data if isinstance(raw.data, Slabs) else whole(raw.data)
+    shape = slabs.shape
+    if len(shape) != 3 or min(shape) < 2:
+        raise UserError(f"{path}: a volume must be 3-D with at least 2 samples per axis, got shape {tuple(shape)}")
+    del raw                              # a whole array read by the reader is dropped once bricked
+    bricks = bricks_from_slabs(slabs, path, allow_nonfinite)
+    return Volume(bricks=bricks, shape=shape, origin=origin, directions=directions,
+                  source=str(path) + (f"::{member}" if member else ""), source_dtype=dtype, space=space,
+                  source_format=format_name, details=details)

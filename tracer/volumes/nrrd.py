@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import UserError
+from .bricking import Slabs
 from .volume import ACCEPTED_DTYPES, RawVolume, bytes_per_voxel
 
 ENCODINGS = ("raw", "gzip", "gz", "bzip2", "bz2", "ascii", "text", "txt")
@@ -61,7 +62,9 @@ def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
     if dtype.name.replace(">", "").replace("<", "") not in ACCEPTED_DTYPES:
         raise UserError(f"{path}: type: {type_name!r} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
 
-    n_bytes = int(np.prod(sizes) * bytes_per_voxel(dtype))
+    streamed = encoding in ("raw", "gzip", "gz") and not any(
+        int(header.get(key, 0) or 0) for key in ("byte skip", "byteskip", "line skip", "lineskip"))
+    n_bytes = int(np.prod(sizes) * bytes_per_voxel(dtype, streamed))
     if n_bytes > budget_bytes:
         raise UserError(
             f"{path}: sizes: {sizes} needs {n_bytes / 2**20:.0f} MiB, over the memory budget of "
@@ -73,6 +76,13 @@ def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
         _check_detached(path, str(data_file))
 
     origin, directions = _geometry(path, header)
+    space = header.get("space")
+    space = None if space is None else str(space)
+    if streamed:
+        data_path = path if data_file is None else path.parent / str(data_file)
+        slabs = _planes(path, data_path, data_file is None, tuple(sizes), dtype, encoding != "raw")
+        return RawVolume(data=slabs, origin=origin, directions=directions, dtype=dtype.newbyteorder("=").name,
+                         space=space)
 
     try:
         data, _ = nrrd.read(str(path), index_order="F")
@@ -85,9 +95,50 @@ def read_nrrd(path: Path, budget_bytes: int) -> RawVolume:
     if tuple(data.shape) != tuple(sizes):
         raise UserError(f"{path}: data: read shape {data.shape} does not match sizes {sizes}")
     data = data.astype(data.dtype.newbyteorder("="), copy=False)
-    space = header.get("space")
-    return RawVolume(data=data, origin=origin, directions=directions, dtype=data.dtype.name,
-                     space=None if space is None else str(space))
+    return RawVolume(data=data, origin=origin, directions=directions, dtype=data.dtype.name, space=space)
+
+
+def _planes(path: Path, data_path: Path, attached: bool, sizes: tuple, dtype: np.dtype, compressed: bool) -> Slabs:
+    """The voxels of a raw or gzip NRRD as z planes (x varies fastest in the file), read forward as asked."""
+    import gzip
+
+    import nrrd
+
+    plane = sizes[0] * sizes[1]
+    state = {}
+
+    def read(start: int, stop: int) -> np.ndarray:
+        try:
+            return _read_planes(start, stop)
+        except BaseException:
+            if "raw" in state:
+                state.pop("raw").close()
+            raise
+
+    def _read_planes(start: int, stop: int) -> np.ndarray:
+        try:
+            if start == 0:
+                handle = open(data_path, "rb")
+                state["raw"] = handle
+                if attached:
+                    nrrd.read_header(handle)          # leaves the handle at the first byte of data
+                state["stream"] = gzip.GzipFile(fileobj=handle) if compressed else handle
+            wanted = (stop - start) * plane * dtype.itemsize
+            chunk = state["stream"].read(wanted)
+            if len(chunk) != wanted:
+                raise UserError(f"{path}: data: the file ends before its sizes {list(sizes)} are filled (truncated?)")
+            if stop == sizes[2] and state["stream"].read(1):
+                raise UserError(f"{path}: data: the file holds more voxels than its sizes {list(sizes)} say")
+        except FileNotFoundError as error:
+            raise UserError(f"{path}: data file: {error.filename} not found")
+        except (OSError, EOFError, zlib.error) as error:
+            raise UserError(f"{path}: data: cannot read the voxels: {_reason(error)}")
+        if stop == sizes[2]:
+            state.pop("raw").close()
+        values = np.frombuffer(chunk, dtype=dtype).astype(dtype.newbyteorder("="), copy=False)
+        return values.reshape((sizes[0], sizes[1], stop - start), order="F")
+
+    return Slabs(sizes, dtype.newbyteorder("="), 2, read)
 
 
 def _check_detached(path: Path, data_file: str) -> None:

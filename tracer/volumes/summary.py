@@ -24,7 +24,7 @@ class VolumeSummary:
     percentiles: dict[str, float]
     histogram_counts: np.ndarray
     histogram_edges: np.ndarray
-    memory_bytes: int
+    memory_bytes: int         # what the loaded volume holds: its bricks
     n_nonfinite: int
 
 
@@ -49,6 +49,6 @@ def summarize(volume: Volume, n_bins: int = 24) -> VolumeSummary:
         percentiles={f"p{p}": float(v) for p, v in zip(levels, values)},
         histogram_counts=counts,
         histogram_edges=edges,
-        memory_bytes=int(data.nbytes),
+        memory_bytes=int(volume.bricks.nbytes),
         n_nonfinite=count_nonfinite(data),
     )

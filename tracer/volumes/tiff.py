@@ -15,6 +15,7 @@ import numpy as np
 
 from ..errors import UserError
 from .optional import require
+from .bricking import Slabs
 from .volume import ACCEPTED_DTYPES, RawVolume, check_budget
 
 TIFF_SUFFIXES = (".tif", ".tiff")
@@ -45,14 +46,15 @@ def read_tiff(path: Path, budget: int) -> RawVolume:
             shape2d = first.pages[0].shape
             dtype = np.dtype(first.pages[0].dtype)
             first.close()
-            check_budget(path, (len(pages),) + tuple(shape2d), dtype, budget)
-            slices = []
-            for page in pages:
-                image = tifffile.imread(str(page))
-                if image.shape != shape2d:
-                    raise UserError(f"{page}: page shape {image.shape} differs from the first page's {shape2d}")
-                slices.append(image)
-            stack = np.stack(slices)
+            if len(shape2d) != 2 or dtype.newbyteorder("=").name not in ACCEPTED_DTYPES:
+                raise UserError(f"{pages[0]}: a page must be grey 2-D of one of {', '.join(ACCEPTED_DTYPES)}, "
+                                f"this one has shape {shape2d} and dtype {dtype}")
+            check_budget(path, (len(pages),) + tuple(shape2d), dtype, budget, streamed=True)
+            return RawVolume(data=Slabs((shape2d[1], shape2d[0], len(pages)), dtype.newbyteorder("="), 2,
+                                        lambda start, stop: _pages(pages[start:stop], shape2d, dtype)),
+                             origin=np.zeros(3), directions=np.eye(3), dtype=dtype.newbyteorder("=").name,
+                             format="TIFF stack", details=(("spacing", "not in the files: 1 mm unless the scene "
+                                                            "gives spacing_mm"),))
         else:
             with tifffile.TiffFile(str(path)) as handle:
                 series = handle.series[0]
@@ -69,12 +71,31 @@ def read_tiff(path: Path, budget: int) -> RawVolume:
     name = stack.dtype.newbyteorder("=").name
     if name not in ACCEPTED_DTYPES:
         raise UserError(f"{path}: dtype {stack.dtype} is not supported; use one of {', '.join(ACCEPTED_DTYPES)}")
-    data = np.ascontiguousarray(stack.transpose(2, 1, 0), dtype=stack.dtype.newbyteorder("="))
+    stack = stack.astype(stack.dtype.newbyteorder("="), copy=False)
+    # pages are z planes of (y, x) pixels: handed over plane by plane in [x, y, z] order, never transposed whole
+    data = Slabs(tuple(stack.shape[::-1]), stack.dtype, 2,
+                 lambda start, stop: stack[start:stop].transpose(2, 1, 0))
     spacing = calibration if calibration is not None else (1.0, 1.0, 1.0)
     details = (("spacing", "from the file's ImageJ calibration" if calibration is not None else
                 "not in the file: 1 mm unless the scene gives spacing_mm"),)
     return RawVolume(data=data, origin=np.zeros(3), directions=np.diag(spacing), dtype=name,
                      format="TIFF stack" if path.is_dir() else "TIFF", details=details)
+
+
+def _pages(pages: list[Path], shape2d: tuple, dtype: np.dtype) -> np.ndarray:
+    """Pages of a folder as planes [x, y, k] (read when the loader asks for them)."""
+    import tifffile
+
+    planes = []
+    for page in pages:
+        try:
+            image = tifffile.imread(str(page))
+        except Exception as error:
+            raise UserError(f"{page}: not a readable TIFF: {str(error).splitlines()[0] if str(error) else type(error).__name__}")
+        if image.shape != shape2d:
+            raise UserError(f"{page}: page shape {image.shape} differs from the first page's {shape2d}")
+        planes.append(image.astype(dtype.newbyteorder("="), copy=False).T)
+    return np.stack(planes, axis=2)
 
 
 def _calibration(handle) -> tuple[float, float, float] | None:

@@ -7,26 +7,33 @@ trilinear between voxel centres and defined on the box they span (index 0 to n-1
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import NamedTuple
 
 import numpy as np
 
 from ..errors import UserError
 
-#: Memory per voxel besides the file's own for a float32 field: the field and its bricked copy (about 1.42 x).
-BYTES_PER_VOXEL = 10
-#: Integer types kept as they are (every value exact in float32, so renders do not change): the field and its
-#: bricks stay in the file's type, 2.4 x the file's bytes instead of 9.7 bytes per voxel.
+#: Integer types kept as they are (every value exact in float32, so renders do not change); other types are
+#: held as float32.
 KEPT_DTYPES = ("uint8", "int8", "uint16", "int16")
+#: Bricks hold 9^3 samples per 8^3 voxels (1.424 x the field), rounded up for the slab being read.
+BRICK_OVERHEAD = 1.5
 
 
-def bytes_per_voxel(dtype) -> float:
-    """What a voxel of a file of ``dtype`` costs once loaded and bricked (the memory check counts this)."""
+def bytes_per_voxel(dtype, streamed: bool = False) -> float:
+    """What a voxel of a file of ``dtype`` costs while it is loaded and once it is bricked (the memory check
+    counts this). A loaded volume keeps only its bricks, in :func:`storage_dtype`; a reader that reads
+    planes (``streamed``: ``.npy``, raw and gzip NRRD, zarr, HDF5) needs nothing more, the others hold the
+    file's whole array (and its float32 copy, for types not kept) until it is bricked."""
     dtype = np.dtype(dtype)
-    if dtype.newbyteorder("=").name in KEPT_DTYPES:
-        return 2.5 * dtype.itemsize           # the array and its bricks (729 / 512 of it), rounded up
-    return dtype.itemsize + BYTES_PER_VOXEL
+    held = BRICK_OVERHEAD * storage_dtype(dtype).itemsize
+    if streamed:
+        return held
+    converted = 0 if dtype.newbyteorder("=") == storage_dtype(dtype) else storage_dtype(dtype).itemsize
+    return held + dtype.itemsize + converted
+
+
 #: File dtypes a volume may have (NRRD ``type`` values by the numpy dtype they read as; ``.npy`` likewise).
 ACCEPTED_DTYPES = ("int8", "uint8", "int16", "uint16", "int32", "uint32", "float32", "float64")
 
@@ -44,11 +51,11 @@ class RawVolume:
     details: tuple = ()       # (label, text) pairs the format adds to ``tracer info`` (DICOM: modality, rescale, ...)
 
 
-def check_budget(path, shape, dtype, budget: int) -> None:
-    """Refuse a volume of ``shape`` and file ``dtype`` whose footprint once loaded and bricked
+def check_budget(path, shape, dtype, budget: int, streamed: bool = False) -> None:
+    """Refuse a volume of ``shape`` and file ``dtype`` whose footprint while loading and once bricked
     (:func:`bytes_per_voxel`) exceeds ``budget``, before reading it."""
     n_voxels = int(np.prod(shape))
-    n_bytes = int(n_voxels * bytes_per_voxel(dtype))
+    n_bytes = int(n_voxels * bytes_per_voxel(dtype, streamed))
     if n_bytes > budget:
         raise UserError(f"{path}: shape {tuple(int(n) for n in shape)} needs {n_bytes / 2**20:.0f} MiB, over the memory "
                         f"budget of {budget / 2**20:.0f} MiB (set TRACER_MEMORY_BUDGET_MB to raise it)")
@@ -57,7 +64,8 @@ def check_budget(path, shape, dtype, budget: int) -> None:
 class VolumeArrays(NamedTuple):
     """What kernels see of a volume.
 
-    field : (nx, ny, nz) float32, C-contiguous
+    field : (nx, ny, nz), C-contiguous; the kernels read ``bricks`` only (a volume held as bricks passes a
+        (2, 2, 2) placeholder of the same type here)
     world_to_index : (3, 4) float64; index = A @ [x, y, z, 1]
     index_to_world : (3, 4) float64; world = B @ [i, j, k, 1]
     gradient_to_world : (3, 3) float64; world gradient = G @ index gradient (G = inverse(M).T)
@@ -73,13 +81,12 @@ class VolumeArrays(NamedTuple):
     shape: np.ndarray
 
 
-@dataclass(frozen=True, eq=False)
 class Volume:
     """A scalar volume in world millimetres.
 
     Parameters
     ----------
-    data : ndarray, shape (nx, ny, nz)
+    data : ndarray, shape (nx, ny, nz), optional
         Scalar values; stored C-contiguous, as float32 except for 8- and 16-bit integers
         (:data:`KEPT_DTYPES`), which are kept as they are (exact in float32: renders do not change).
     origin : (3,) mm
@@ -94,31 +101,54 @@ class Volume:
     space : str, optional
         The file's NRRD ``space`` (canonical name, e.g. ``"left-posterior-superior"``): what the world
         axes mean. Geometry comes from ``directions`` alone; see :mod:`.orientation`.
+    bricks, shape : optional
+        Instead of ``data``: the field already in the renderer's bricks (``sampling.make_bricks``'s layout)
+        and its shape. :func:`~tracer.volumes.loading.load_volume` builds volumes this way and keeps no
+        plain copy (a volume then costs its bricks, about 1.42 x the field's bytes); :attr:`data`
+        assembles the plain array from the bricks on each use.
     """
 
-    data: np.ndarray
-    origin: np.ndarray = field(default_factory=lambda: np.zeros(3))
-    directions: np.ndarray = field(default_factory=lambda: np.eye(3))
-    source: str = "<array>"
-    source_dtype: str = "float32"
-    space: str | None = None
-    source_format: str = "array"
-    details: tuple = ()
-
-    def __post_init__(self):
-        data = np.asarray(self.data)
-        kept = data.dtype.newbyteorder("=").name in KEPT_DTYPES
-        data = np.ascontiguousarray(data, dtype=data.dtype.newbyteorder("=") if kept else np.float32)
-        if data.ndim != 3:
-            raise UserError(f"{self.source}: a volume must be 3-D, got shape {data.shape}")
-        if min(data.shape) < 2:
-            raise UserError(f"{self.source}: every axis needs at least 2 samples, got shape {data.shape}")
-        object.__setattr__(self, "data", data)
-        object.__setattr__(self, "origin", np.asarray(self.origin, dtype=np.float64).reshape(3))
-        object.__setattr__(self, "directions", np.asarray(self.directions, dtype=np.float64).reshape(3, 3))
+    def __init__(self, data=None, origin=None, directions=None, source: str = "<array>",
+                 source_dtype: str = "float32", space: str | None = None, source_format: str = "array",
+                 details: tuple = (), *, bricks: np.ndarray | None = None, shape=None):
         from .orientation import normalise_space
 
-        object.__setattr__(self, "space", normalise_space(self.space))
+        self.source = source
+        self.source_dtype = source_dtype
+        self.source_format = source_format
+        self.details = tuple(details)
+        self.origin = np.zeros(3) if origin is None else np.asarray(origin, dtype=np.float64).reshape(3)
+        self.directions = np.eye(3) if directions is None else np.asarray(directions, dtype=np.float64).reshape(3, 3)
+        self.space = normalise_space(space)
+        self._value_range = None
+        if (data is None) == (bricks is None):
+            raise TypeError("Volume needs either data or bricks (with shape)")
+        if data is not None:
+            data = np.asarray(data)
+            data = np.ascontiguousarray(data, dtype=storage_dtype(data.dtype))
+            self._data, self._bricks, self._shape = data, None, data.shape
+        else:
+            self._data, self._bricks, self._shape = None, bricks, tuple(int(n) for n in shape)
+        if len(self._shape) != 3:
+            raise UserError(f"{self.source}: a volume must be 3-D, got shape {self._shape}")
+        if min(self._shape) < 2:
+            raise UserError(f"{self.source}: every axis needs at least 2 samples, got shape {self._shape}")
+
+    @property
+    def data(self) -> np.ndarray:
+        """The field as a plain (nx, ny, nz) array (for a volume held as bricks only, a new array each time)."""
+        if self._data is not None:
+            return self._data
+        from .._kernels.sampling import unbrick
+
+        out = np.empty(self._shape, self._bricks.dtype)
+        unbrick(self._bricks, out)
+        return out
+
+    @property
+    def dtype(self) -> np.dtype:
+        """The stored value type (the file's for :data:`KEPT_DTYPES`, else float32)."""
+        return (self._data if self._data is not None else self._bricks).dtype
 
     @property
     def patient_space(self) -> bool:
@@ -130,7 +160,7 @@ class Volume:
     # geometry -------------------------------------------------------------------------
     @property
     def shape(self) -> tuple[int, int, int]:
-        return tuple(int(n) for n in self.data.shape)
+        return tuple(int(n) for n in self._shape)
 
     @property
     def spacing(self) -> np.ndarray:
@@ -181,32 +211,46 @@ class Volume:
 
     @property
     def value_range(self) -> tuple[float, float]:
-        return float(self.data.min()), float(self.data.max())
+        """(min, max) of the voxels (the bricks hold every voxel and only repeats besides)."""
+        if self._value_range is None:
+            values = self._data if self._data is not None else self._bricks
+            self._value_range = float(values.min()), float(values.max())
+        return self._value_range
 
     @property
     def bricks(self) -> np.ndarray:
         """The field in 8^3-voxel bricks with a shared face (built once per volume, then kept)."""
-        cached = self.__dict__.get("_bricks")
-        if cached is None:
-            from .._kernels.sampling import BRICK, make_bricks
+        if self._bricks is None:
+            from .._kernels.sampling import make_bricks
 
-            grid = tuple(max(1, -(-(n - 1) // BRICK)) for n in self.shape)
-            cached = np.empty(grid + (BRICK + 1,) * 3, self.data.dtype)
-            make_bricks(self.data, cached)
-            object.__setattr__(self, "_bricks", cached)
-        return cached
+            self._bricks = np.empty(brick_grid(self.shape), self._data.dtype)
+            make_bricks(self._data, self._bricks)
+        return self._bricks
 
     def to_arrays(self) -> VolumeArrays:
         matrix = self.index_to_world_matrix
         inverse = np.linalg.inv(matrix)
         return VolumeArrays(
-            field=self.data,
+            field=self._data if self._data is not None else np.zeros((2, 2, 2), self.dtype),
             world_to_index=np.ascontiguousarray(inverse[:3, :]),
             index_to_world=np.ascontiguousarray(matrix[:3, :]),
             gradient_to_world=np.ascontiguousarray(np.linalg.inv(self.directions.T).T),
             bricks=self.bricks,
             shape=np.array(self.shape, dtype=np.int64),
         )
+
+
+def storage_dtype(dtype) -> np.dtype:
+    """The type a volume of file ``dtype`` is held in: its own (native order) for :data:`KEPT_DTYPES`, else float32."""
+    dtype = np.dtype(dtype).newbyteorder("=")
+    return dtype if dtype.name in KEPT_DTYPES else np.dtype(np.float32)
+
+
+def brick_grid(shape) -> tuple:
+    """The shape of the bricks array of a field of ``shape``: (gx, gy, gz, 9, 9, 9)."""
+    from .._kernels.sampling import BRICK
+
+    return tuple(max(1, -(-(int(n) - 1) // BRICK)) for n in shape) + (BRICK + 1,) * 3
 
 
 def count_nonfinite(data: np.ndarray) -> int:
