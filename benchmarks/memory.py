@@ -4,7 +4,7 @@
 
 Writes a smooth uint8 field as .npy in a temporary folder, renders it at 64 x 64, 1 spp, and prints the
 process's peak resident memory (VmHWM), the load and render times, and the footprint the memory check predicts (results in
-benchmarks/results/memory.json).
+benchmarks/results/memory_SIZE.json).
 """
 
 from __future__ import annotations
@@ -57,7 +57,7 @@ def main() -> None:
               "seconds_render": float(seconds), "predicted_bytes": args.size ** 3 * bytes_per_voxel("uint8", True),
               "mean_alpha": float(alpha)}
     (ROOT / "benchmarks" / "results").mkdir(parents=True, exist_ok=True)
-    (ROOT / "benchmarks" / "results" / "memory.json").write_text(json.dumps(report, indent=2))
+    (ROOT / "benchmarks" / "results" / f"memory_{args.size}.json").write_text(json.dumps(report, indent=2))
     print(f"{args.size}^3 uint8: peak {int(peak) / 2**30:.2f} GiB ({int(peak) / 1e9:.2f} GB), "
           f"the memory check counts {report['predicted_bytes'] / 2**30:.2f} GiB; load {float(load_seconds):.1f} s, "
           f"render (64 x 64, 1 spp, compile included on a cold cache) {float(seconds):.1f} s")
