@@ -15,9 +15,10 @@ from .volume import RawVolume, Volume
 
 def load_volume(path, *, spacing_mm=None, origin_mm=None, budget_bytes: int | None = None,
                 allow_nonfinite: bool = False) -> Volume:
-    """Load a volume as float32 in [x, y, z] order: NRRD (``.nrrd``, ``.nhdr``), ``.npy``, NIfTI (``.nii``,
-    ``.nii.gz``), a DICOM series (a folder), TIFF (a multi-page file or a folder of pages), zarr / OME-Zarr
-    (``.zarr``) or HDF5 (``.h5::dataset``); all but NRRD and ``.npy`` need the ``formats`` extra.
+    """Load a volume in [x, y, z] order, held as the renderer's bricks only (see :class:`Volume`): NRRD
+    (``.nrrd``, ``.nhdr``), ``.npy``, NIfTI (``.nii``, ``.nii.gz``), a DICOM series (a folder), TIFF (a
+    multi-page file or a folder of pages), zarr / OME-Zarr (``.zarr``) or HDF5 (``.h5::dataset``); all but NRRD and
+    ``.npy`` need the ``formats`` extra.
 
     Parameters
     ----------
