@@ -58,7 +58,7 @@ def to_index_direction(world_to_index, dx, dy, dz):
 def build_macrocells(bricks, extinction, lookup, size, out):
     """Largest extinction any point of each macrocell can take, read from the bricked field.
 
-    bricks (gx, gy, gz, BRICK+1, BRICK+1, BRICK+1) (see ``sampling.make_bricks``); extinction (n,)
+    bricks (gx, gy, gz, BRICK+1, BRICK+1, BRICK+1) (see ``sampling.fill_brick_layer``); extinction (n,)
     float32 table; lookup (2,) float64; size: voxel intervals per cell, a divisor of BRICK (CELL for
     the march's skipping, TRACK_CELL for tracking); out (ceil((nx-1)/size), ...) float32. Cell c
     covers voxel indices [size c, size c + size] (the trilinear field inside it is a convex

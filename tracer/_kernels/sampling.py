@@ -58,31 +58,14 @@ BRICK_MASK = BRICK - 1
 
 
 @njit(**JIT_PARALLEL)
-def make_bricks(field, out):
-    """Copy ``field`` (nx, ny, nz) into bricks ``out`` (gx, gy, gz, BRICK+1, BRICK+1, BRICK+1) float32.
-
-    Brick (a, b, c) holds voxels [BRICK a, BRICK a + BRICK] per axis (edge-clamped past the end), so a
-    lookup's neighbourhood is a few kilobytes apart at most instead of whole planes apart: rays in any
-    direction stay in cache (a bricked layout; it pays on large volumes, see benchmarks/).
-    """
-    nx, ny, nz = field.shape
-    gx, gy, gz = out.shape[0], out.shape[1], out.shape[2]
-    for a in prange(gx):
-        for b in range(gy):
-            for c in range(gz):
-                for i in range(BRICK + 1):
-                    for j in range(BRICK + 1):
-                        for k in range(BRICK + 1):
-                            out[a, b, c, i, j, k] = field[min(a * BRICK + i, nx - 1), min(b * BRICK + j, ny - 1),
-                                                          min(c * BRICK + k, nz - 1)]
-
-
-@njit(**JIT_PARALLEL)
 def fill_brick_layer(slab, axis, layer, shape, out):
     """Fill the bricks of index ``layer`` along ``axis`` from ``slab``, a part of the field: the planes
     ``[BRICK layer, min(BRICK layer + BRICK, n - 1)]`` along ``axis`` (n = ``shape[axis]``) and the whole
-    extent along the other two, in [x, y, z] order. Same samples as :func:`make_bricks` writes there,
-    so a field read slab by slab gives the same bricks as the whole field."""
+    extent along the other two, in [x, y, z] order.
+
+    Brick (a, b, c) holds voxels [BRICK a, BRICK a + BRICK] per axis (edge-clamped past the end), so a
+    lookup's neighbourhood is a few kilobytes apart at most instead of whole planes apart: rays in any
+    direction stay in cache (a bricked layout; it pays on large volumes, see benchmarks/)."""
     gx, gy, gz = out.shape[0], out.shape[1], out.shape[2]
     first = layer * BRICK
     counts = (1 if axis == 0 else gx, 1 if axis == 1 else gy, 1 if axis == 2 else gz)
@@ -102,7 +85,7 @@ def fill_brick_layer(slab, axis, layer, shape, out):
 
 @njit(**JIT_PARALLEL)
 def unbrick(bricks, out):
-    """The plain field (nx, ny, nz) back from its bricks (the inverse of :func:`make_bricks`)."""
+    """The plain field (nx, ny, nz) back from its bricks (the inverse of filling every layer with :func:`fill_brick_layer`)."""
     nx, ny, nz = out.shape
     gx, gy, gz = bricks.shape[0], bricks.shape[1], bricks.shape[2]
     for xu in prange(nx):

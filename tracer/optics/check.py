@@ -179,7 +179,8 @@ def plot_transfer_check(volume: Volume, tf: TransferFunction, check: TransferChe
     top.set_ylim(0, 1.05)
     top.set_ylabel(f"opacity per {tf.reference_length_mm:g} mm\n(area tinted by albedo)", fontsize=8)
     share_axis = top.twinx()
-    centres, shares, ceiling, clipped = clipped_histogram(volume.data[np.isfinite(volume.data)].ravel(), lo, hi)
+    data = volume.data                         # assembled from the bricks once
+    centres, shares, ceiling, clipped = clipped_histogram(data[np.isfinite(data)].ravel(), lo, hi)
     # drawn on the opacity axes (scaled to the share axis) so the area never hides it
     to_top = 1.05 / (ceiling * 1.1)
     top.step(centres, np.minimum(shares, ceiling) * to_top, where="mid", color="#4d5b73", lw=0.9, zorder=4)

@@ -20,7 +20,8 @@ def auto_transfer_function(volume):
     median to the 99.5th percentile, rising to opacity 0.6 per mean voxel spacing at 70% of the way."""
     from ..optics.transfer import TransferFunction
 
-    finite = volume.data[np.isfinite(volume.data)]
+    data = volume.data                         # assembled from the bricks once
+    finite = data[np.isfinite(data)]
     median, top = (float(v) for v in np.percentile(finite, [50, 99.5]))
     if not top > median:
         median, top = float(finite.min()), float(finite.max())

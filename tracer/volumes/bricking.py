@@ -4,8 +4,8 @@ A reader that can read a range of planes along one axis cheaply (``.npy``, raw a
 HDF5: see :class:`Slabs`) hands the loader a :class:`Slabs`; the bricks are then filled one layer of
 bricks (8 planes, plus the one shared with the next layer) at a time, and the whole field exists only
 as bricks. Readers that return a whole array (NIfTI, DICOM, TIFF) are bricked the same way from that
-array, which is then dropped. Either way the bricks are the same bits as ``sampling.make_bricks`` on
-the whole field (tested).
+array, which is then dropped. Either way the bricks are the same bits as bricking the whole
+array at once (tested).
 """
 
 from __future__ import annotations

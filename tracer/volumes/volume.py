@@ -102,7 +102,7 @@ class Volume:
         The file's NRRD ``space`` (canonical name, e.g. ``"left-posterior-superior"``): what the world
         axes mean. Geometry comes from ``directions`` alone; see :mod:`.orientation`.
     bricks, shape : optional
-        Instead of ``data``: the field already in the renderer's bricks (``sampling.make_bricks``'s layout)
+        Instead of ``data``: the field already in the renderer's bricks (``sampling.fill_brick_layer``'s layout)
         and its shape. :func:`~tracer.volumes.loading.load_volume` builds volumes this way and keeps no
         plain copy (a volume then costs its bricks, about 1.42 x the field's bytes); :attr:`data`
         assembles the plain array from the bricks on each use.
@@ -221,10 +221,14 @@ class Volume:
     def bricks(self) -> np.ndarray:
         """The field in 8^3-voxel bricks with a shared face (built once per volume, then kept)."""
         if self._bricks is None:
-            from .._kernels.sampling import make_bricks
+            from .._kernels.sampling import BRICK, fill_brick_layer
 
-            self._bricks = np.empty(brick_grid(self.shape), self._data.dtype)
-            make_bricks(self._data, self._bricks)
+            bricks = np.empty(brick_grid(self.shape), self._data.dtype)
+            n = self.shape[0]
+            for layer in range(bricks.shape[0]):          # the loader's layers, cut from the array in place
+                fill_brick_layer(self._data[layer * BRICK:min(layer * BRICK + BRICK, n - 1) + 1], 0, layer,
+                                 np.array(self.shape, np.int64), bricks)
+            self._bricks = bricks
         return self._bricks
 
     def to_arrays(self) -> VolumeArrays:
