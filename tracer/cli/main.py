@@ -7,7 +7,7 @@ from pathlib import Path
 
 import typer
 
-from . import datasets, rendering, scoring, volumes
+from . import datasets, rendering, reporting, scoring, volumes
 from .common import MEDICAL_CAUTION
 
 app = typer.Typer(
@@ -26,6 +26,7 @@ volumes.register(app)
 rendering.register(app)
 datasets.register(app)
 scoring.register(app)
+reporting.register(app)
 volumes.register_demo_volumes(app)
 
 

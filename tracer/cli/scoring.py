@@ -93,6 +93,8 @@ def score_dataset(
     exposure: Annotated[float, typer.Option(help="Exposure in stops before the sRGB curve.")] = 0.0,
     covered_only: Annotated[bool, typer.Option("--covered-only", help="Score only covered pixels.")] = False,
     csv: Annotated[Optional[Path], typer.Option(help="Write per-item and per-split rows here (CSV).")] = None,
+    json_out: Annotated[Optional[Path], typer.Option("--json", help="Write the whole result here (JSON): per-item scores "
+                        "with their ladders, per-split aggregates; `tracer report` makes a page of it.")] = None,
 ):
     """Score a denoiser's predictions for every item of a dataset, with per-split aggregates."""
     import io
@@ -100,7 +102,7 @@ def score_dataset(
     from rich.table import Table
 
     from ..io.atomic import atomic_path
-    from ..scoring.score import aggregate
+    from ..scoring.score import aggregate, dataset_result
     from ..scoring.score import score_dataset as run
 
     items = run(folder, predictions, input_spp=input_spp, denoise_seconds=denoise_seconds, exposure=exposure,
@@ -126,6 +128,14 @@ def score_dataset(
         with atomic_path(csv) as temporary:
             temporary.write_text(buffer.getvalue())
         console.print(f"wrote {escape(str(csv))}")
+    if json_out is not None:
+        import json
+
+        result = dataset_result(folder, predictions, items, summary, input_spp=input_spp, denoise_seconds=denoise_seconds,
+                                exposure=exposure, covered_only=covered_only)
+        with atomic_path(json_out) as temporary:
+            temporary.write_text(json.dumps(result, indent=1))
+        console.print(f"wrote {escape(str(json_out))}")
 
 
 @reports_user_errors

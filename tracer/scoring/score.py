@@ -284,6 +284,14 @@ def score_dataset(folder, predictions, *, input_spp: int | None = None, denoise_
     return results
 
 
+def dataset_result(folder, predictions, items: list[ItemScore], summary: dict, **settings) -> dict:
+    """The JSON document of ``score-dataset --json``: what was scored, how, per item and per split."""
+    return {"written_by": "tracer score-dataset", "dataset": str(Path(folder).resolve()),
+            "predictions": str(Path(predictions).resolve()), **settings,
+            "items": [{"id": item.item_id, "split": item.split, **item.report.as_dict()} for item in items],
+            "splits": summary}
+
+
 def aggregate(items: list[ItemScore]) -> dict[str, dict]:
     """Per split (and ``all``): mean PSNR, SSIM and relative MSE, median equal-quality spp, geometric-mean speedup."""
     groups: dict[str, list[ItemScore]] = {}
