@@ -29,7 +29,7 @@ PLUME_TF = ROOT / "transfer_functions" / "plume_smoke.toml"
 @dataclass(frozen=True)
 class Case:
     name: str
-    kind: str                                   # NRRD, transfer function, scene, plan, output, merge
+    kind: str                                   # NRRD, transfer function, scene, plan, output, merge, format, report
     setup: Callable[[Path], list]
     message: str
     exit_code: int = 2
@@ -258,6 +258,25 @@ FORMAT_CASES = [
     Case("convert to a non-NRRD", "format", lambda tmp: ["convert", PLUME, tmp / "out" / "plume.vtk"], "error: {tmp}/out/plume.vtk: the output must be a .nrrd file"),
 ]
 CASES += FORMAT_CASES
+
+
+def report_of(name: str, content: bytes | None):
+    def setup(tmp: Path):
+        path = tmp / name
+        if content is None:
+            path.mkdir()
+        else:
+            path.write_bytes(content)
+        return ["report", path, "--out", tmp / "out"]
+    return setup
+
+
+REPORT_CASES = [
+    Case("report of a folder that is no dataset", "report", report_of("renders", None), "error: {tmp}/renders: not a dataset folder (manifest.jsonl missing)"),
+    Case("report of a JSON that is no score result", "report", report_of("scores.json", b'{"psnr": 30}'), "error: {tmp}/scores.json: not a score-dataset result (write one with tracer score-dataset --json)"),
+    Case("report of a missing file", "report", lambda tmp: ["report", tmp / "render.npz", "--out", tmp / "out"], "error: {tmp}/render.npz: not found; give a render .npz, a dataset folder or a score-dataset --json result"),
+]
+CASES += REPORT_CASES
 
 
 def run_case(case: Case, tmp: Path):

@@ -49,6 +49,7 @@ def manifest(folder) -> list[dict]:
 
 def keep_screenshot(driver, tmp: Path, name: str) -> Path:
     path = tmp / f"{name}.png"
+    driver.execute_script("window.scrollTo(0, 0)")
     driver.save_screenshot(str(path))
     assert path.stat().st_size > 10_000
     if SCREENSHOTS:
@@ -160,6 +161,11 @@ def test_render_page_exposure_and_hover(dataset, browser, tmp_path):
     assert browser.find_element("id", "readout-pixel").text == f"pixel x {x}, y {y}"
     for key in ("radiance", "radiance_variance", "event1_depth", "event1_normal", "alpha", "albedo"):
         assert_float16_equal(shown_values(browser, key), arrays[key][y, x])
+    from selenium.webdriver.common.keys import Keys
+
+    browser.find_element("id", "view").send_keys(Keys.ARROW_RIGHT, Keys.ARROW_DOWN)     # the keyboard moves it too
+    assert browser.find_element("id", "readout-pixel").text == f"pixel x {x + 1}, y {y + 1}"
+    assert_float16_equal(shown_values(browser, "radiance"), arrays["radiance"][y + 1, x + 1])
     assert_only_local_requests(browser, out)
     keep_screenshot(browser, tmp_path, "report-render")
 
@@ -186,7 +192,7 @@ def test_dataset_table_filters_and_compare_divider(dataset, browser, tmp_path):
     Select(browser.find_element("id", "filter-volume")).select_by_value("figurine.nrrd")
     assert visible() == [r["id"] for r in records if r["volume"].endswith("figurine.nrrd")]
 
-    record = records[3]
+    record = records[6]                                                          # a figurine view
     navigate(browser, "#item=" + record["id"])
     left = half(npz(dataset / "ds" / record["files"]["spp0001.npz"]["path"])["radiance"])
     right = half(npz(dataset / "ds" / record["files"]["reference.npz"]["path"])["radiance"])
@@ -198,6 +204,8 @@ def test_dataset_table_filters_and_compare_divider(dataset, browser, tmp_path):
     assert np.abs(shown[:, :width // 2] - srgb_bytes(right[:, :width // 2])).max() > 1       # and they differ
     features = browser.execute_script("return Array.from(document.querySelectorAll('#features canvas')).map(c => c.dataset.key)")
     assert {"albedo", "event1_normal", "event1_depth", "alpha", "event2_position"} <= set(features)
+    hover_pixel(browser, "#compare", width // 2 - 4, left.shape[0] // 2)
+    keep_screenshot(browser, tmp_path, "report-compare")
 
     canvas = browser.find_element("id", "compare")
     ActionChains(browser).move_to_element_with_offset(canvas, -canvas.size["width"] // 4, 0).click_and_hold() \
@@ -213,7 +221,6 @@ def test_dataset_table_filters_and_compare_divider(dataset, browser, tmp_path):
     browser.find_element("tag name", "body").send_keys("f")                        # and the right one
     shown = canvas_pixels(browser, "#compare")[..., :3].astype(np.float64)
     assert np.abs(shown - srgb_bytes(right)).max() <= 1
-    keep_screenshot(browser, tmp_path, "report-compare")
     assert_only_local_requests(browser, out)
 
 

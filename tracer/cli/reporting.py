@@ -22,6 +22,8 @@ def report(
                    "an earlier report there is replaced, any other non-empty folder is refused.")],
     predictions: Annotated[Optional[Path], typer.Option(help="For a dataset: a folder of ITEM_ID.npz / .exr "
                            "predictions to compare as the candidate.")] = None,
+    features: Annotated[bool, typer.Option("--features/--no-features", help="Ship the references' feature buffers "
+                        "(about 77 bytes per pixel per item; without them about 8 per image).")] = True,
 ):
     """Write a page to look at renders, datasets and scores: open OUT/index.html from disk, no server needed.
 
@@ -38,7 +40,7 @@ def report(
     columns = [TextColumn("[bold]items"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn()]
     with Progress(*columns, console=error_console, transient=True) as progress:
         task = progress.add_task("items", total=None)
-        summary = write_report(path, out, predictions=predictions,
+        summary = write_report(path, out, predictions=predictions, features=features,
                                on_progress=lambda done, total: progress.update(task, completed=done, total=total))
     what = {"render": "render page", "dataset": f"dataset page, {summary.items} items",
             "score": f"score page, {summary.items} items"}[summary.kind]

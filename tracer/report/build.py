@@ -70,15 +70,18 @@ def check_report_folder(out) -> None:
     check_output_folder(out)
 
 
-def write_report(path, out, *, predictions=None, on_progress: Callable[[int, int], None] | None = None) -> ReportSummary:
-    """Write the report of PATH (render NPZ, dataset folder, or ``score-dataset --json`` result) into OUT."""
+def write_report(path, out, *, predictions=None, features: bool = True,
+                 on_progress: Callable[[int, int], None] | None = None) -> ReportSummary:
+    """Write the report of PATH (render NPZ, dataset folder, or ``score-dataset --json`` result) into OUT.
+
+    ``features=False`` ships only the radiance of a dataset's references (a page about a tenth the size)."""
     started = time.perf_counter()
     path, out = Path(path), Path(out)
     kind = report_kind(path)
     check_report_folder(out)
     if predictions is not None and kind != "dataset":
         raise UserError("--predictions: only for a dataset folder (a score result names its own)")
-    model, jobs = _plan(kind, path, predictions)
+    model, jobs = _plan(kind, path, predictions, features)
     staging = out.parent / f".{out.name}.partial-{os.getpid()}"
     shutil.rmtree(staging, ignore_errors=True)
     try:
@@ -129,19 +132,19 @@ class _Image:
     entry: dict                         # the page model's entry for it, updated with status
 
 
-def _plan(kind: str, path: Path, predictions) -> tuple[dict, list[_Image]]:
+def _plan(kind: str, path: Path, predictions, features: bool) -> tuple[dict, list[_Image]]:
     from .. import __version__
 
     if kind == "render":
         return _render_model(path, __version__)
     if kind == "score":
         result = _read_score_result(path)
-        model, jobs = _dataset_model(Path(result["dataset"]), Path(result["predictions"]), __version__)
+        model, jobs = _dataset_model(Path(result["dataset"]), Path(result["predictions"]), __version__, features)
         _attach_scores(model, result, path)
         model["kind"] = "score"
         model["title"] = f"Scores: {Path(result['predictions']).name} on {model['dataset']['name']}"
         return model, jobs
-    return _dataset_model(path, Path(predictions) if predictions is not None else None, __version__)
+    return _dataset_model(path, Path(predictions) if predictions is not None else None, __version__, features)
 
 
 def _render_model(path: Path, version: str):
@@ -174,7 +177,7 @@ def _is_medical(scene: dict) -> bool:
     return bool(scene.get("transfer_function", {}).get("medical")) or scene.get("volume", {}).get("space") in PATIENT_SPACES
 
 
-def _dataset_model(folder: Path, predictions: Path | None, version: str):
+def _dataset_model(folder: Path, predictions: Path | None, version: str, features: bool = True):
     from ..dataset.manifest import read_manifest
 
     records = read_manifest(folder)
@@ -200,7 +203,7 @@ def _dataset_model(folder: Path, predictions: Path | None, version: str):
             page_entry = {"label": label, "role": entry["role"], "spp": entry["spp"], "bundle": bundle,
                           "thumb": f"thumbs/{bundle}.png", "path": entry["path"], "sha256": entry["sha256"]}
             files.append(page_entry)
-            jobs.append(_Image(folder / entry["path"], bundle, None if reference else ("radiance",),
+            jobs.append(_Image(folder / entry["path"], bundle, None if reference and features else ("radiance",),
                                page_entry["thumb"], page_entry))
         if predictions is not None:
             found = next((p for p in (predictions / f"{record['id']}.npz", predictions / f"{record['id']}.exr")
@@ -339,7 +342,7 @@ def _write_thumb(path: Path, radiance) -> None:
     if factor > 1:
         h, w = (image.shape[0] // factor) * factor, (image.shape[1] // factor) * factor
         image = image[:h, :w].reshape(h // factor, factor, w // factor, factor, 3).mean(axis=(1, 3))
-    iio.imwrite(path, to_uint8(to_display(np.nan_to_num(image, nan=0.0, posinf=0.0, neginf=0.0))), extension=".png")
+    iio.imwrite(path, to_uint8(to_display(np.nan_to_num(image, nan=0.0, neginf=0.0))), extension=".png")
 
 
 def _finite(value):

@@ -19,7 +19,8 @@ from ..io.atomic import atomic_path
 
 def half_floats(array) -> str:
     """An array as base64 of its little-endian float16 values, in C order."""
-    values = np.ascontiguousarray(np.asarray(array, dtype=np.float32).astype("<f2"))
+    with np.errstate(over="ignore"):                     # beyond 65504: infinity, by design
+        values = np.ascontiguousarray(np.asarray(array, dtype=np.float32).astype("<f2"))
     return base64.b64encode(values.tobytes()).decode("ascii")
 
 

@@ -169,6 +169,17 @@ function valuesAt(image, key, x, y) {
   return Array.from(buffer.values.subarray(at, at + c));
 }
 
+// Arrow keys move the inspected pixel while an image has the keyboard focus.
+function arrowInspect(event, canvas, cursor, inspect) {
+  const steps = { ArrowLeft: [-1, 0], ArrowRight: [1, 0], ArrowUp: [0, -1], ArrowDown: [0, 1] };
+  if (event.target !== canvas || !steps[event.key]) return false;
+  const [dx, dy] = steps[event.key], stride = event.shiftKey ? 8 : 1;
+  cursor[0] = Math.min(canvas.width - 1, Math.max(0, cursor[0] + dx * stride));
+  cursor[1] = Math.min(canvas.height - 1, Math.max(0, cursor[1] + dy * stride));
+  inspect(cursor[0], cursor[1]);
+  return true;
+}
+
 // --- small DOM helpers -----------------------------------------------------------------------
 
 function el(tag, attributes = {}, ...children) {
@@ -243,7 +254,7 @@ function setupControls() {
 }
 
 function fitZoom(width) {
-  const room = Math.max(200, Math.min(window.innerWidth - 440, 640));
+  const room = Math.max(200, Math.min(window.innerWidth - 520, 640));
   let best = 1;
   for (const z of ZOOMS) if (z * width <= room) best = z;
   return best;
@@ -289,8 +300,10 @@ async function renderPage(main) {
     const rows = model.buffers.map((spec) => [spec.key, spec.key, valuesAt(image, spec.key, x, y), spec.units]);
     readout.replaceChildren(el("p", { id: "readout-pixel", text: `pixel x ${x}, y ${y}` }), readoutTable(rows));
   }
-  canvas.addEventListener("mousemove", (event) => { const p = pixelUnder(event, canvas); if (p) inspect(...p); });
+  const cursor = [0, 0];
+  canvas.addEventListener("mousemove", (event) => { const p = pixelUnder(event, canvas); if (p) { cursor.splice(0, 2, ...p); inspect(...p); } });
   keyHandler = (event) => {
+    if (arrowInspect(event, canvas, cursor, inspect)) return true;
     const keys = model.buffers.map((s) => s.key), at = keys.indexOf(selected);
     if (event.key === "b") { select(keys[(at + 1) % keys.length]); return true; }
     if (event.key === "B") { select(keys[(at + keys.length - 1) % keys.length]); return true; }
@@ -301,7 +314,7 @@ async function renderPage(main) {
   redrawers.add(draw);
   main.replaceChildren(el("div", { class: "split" },
     el("div", { class: "stage" }, el("div", { class: "scroll" }, canvas), caption),
-    el("aside", {}, el("h2", { text: "Buffers" }), list, el("p", { class: "hint", text: "b / B: next / previous buffer" }),
+    el("aside", {}, el("h2", { text: "Buffers" }), list, el("p", { class: "hint", text: "b / B: next / previous buffer; with the image focused (Tab), arrow keys move the read-out" }),
       el("h2", { text: "Pixel" }), readout, el("h2", { text: "Render" }), facts)));
   select(selected);
 }
@@ -483,7 +496,7 @@ async function itemView(section, item) {
       ` · item ${position + 1} of ${model.items.length} · `, el("strong", { text: item.id })),
     item.problems.length ? el("p", { class: "alert", text: "Flagged: " + item.problems.join("; ") }) : null,
     el("div", { class: "compare-bar" }, el("label", {}, "left ", leftSelect), el("label", {}, "divider ", divider), el("label", {}, "right ", rightSelect), mode),
-    el("p", { class: "hint", text: "drag on the image or use the divider; f: flip between the two whole images; s: back to split; [ ]: move the divider; j / k: next / previous item; Esc: all items" }),
+    el("p", { class: "hint", text: "drag on the image or use the divider; f: flip between the two whole images; s: back to split; [ ]: move the divider; j / k: next / previous item; Esc: all items; with the image focused (Tab), arrow keys move the read-out" }),
     el("div", { class: "split" }, el("div", { class: "stage" }, el("div", { class: "scroll" }, stage), el("h2", { text: "Feature buffers of the reference" }), features),
       el("aside", {}, el("h2", { text: "Pixel" }), readout, el("h2", { text: "Item" }), facts)));
   if (!files.length) { put(section, el("p", { class: "alert", text: "No readable file for this item." })); return; }
@@ -491,6 +504,7 @@ async function itemView(section, item) {
   const byBundle = new Map(files.map((f, k) => [f.bundle, images[k]]));
   const referenceImage = reference ? byBundle.get(reference.bundle) : null;
   const featureKeys = referenceImage ? Object.keys(referenceImage.buffers).filter((k) => k !== "radiance") : [];
+  if (!featureKeys.length) features.append(el("p", { class: "dim", text: reference ? "Not in this report (written with --no-features)." : "No readable reference." }));
   const featureCanvases = featureKeys.map((key) => {
     const c = el("canvas", { class: "pixels", "data-key": key, title: key + ": " + KIND_NOTE[bufferKind(key)] });
     c.addEventListener("mousemove", (event) => { const p = pixelUnder(event, c); if (p) inspect(...p); });
@@ -516,7 +530,8 @@ async function itemView(section, item) {
   let dragging = false;
   canvas.addEventListener("pointerdown", (event) => { dragging = true; canvas.setPointerCapture(event.pointerId); moveDivider(event); });
   canvas.addEventListener("pointerup", () => { dragging = false; });
-  canvas.addEventListener("mousemove", (event) => { const p = pixelUnder(event, canvas); if (p) inspect(...p); });
+  const cursor = [0, 0];
+  canvas.addEventListener("mousemove", (event) => { const p = pixelUnder(event, canvas); if (p) { cursor.splice(0, 2, ...p); inspect(...p); } });
   canvas.addEventListener("pointermove", (event) => { if (dragging) moveDivider(event); });
   function moveDivider(event) {
     const box = canvas.getBoundingClientRect();
@@ -527,6 +542,7 @@ async function itemView(section, item) {
   for (const control of [leftSelect, rightSelect]) control.addEventListener("change", draw);
   divider.addEventListener("input", () => { flip = null; draw(); });
   keyHandler = (event) => {
+    if (arrowInspect(event, canvas, cursor, inspect)) return true;
     if (event.key === "f") { flip = flip === "left" ? "right" : "left"; draw(); return true; }
     if (event.key === "s") { flip = null; draw(); return true; }
     if (event.key === "[" || event.key === "]") { divider.value = String(Number(divider.value) + (event.key === "]" ? 5 : -5)); flip = null; draw(); return true; }
