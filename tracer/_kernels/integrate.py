@@ -15,7 +15,12 @@ transmittance; single scattering).
 Accumulator layout, float64, shape (H, W, C) (see :mod:`tracer.accumulate`):
 ``[0:3]`` radiance sum, ``[3:6]`` radiance square sum, ``[6]`` alpha sum, ``[7:10]`` albedo sum
 (at event 1), then one block of 8 per feature event (event 1, event 2, level 1, level 2):
-``[count, position x3, normal x3, depth]``.
+``[count, position x3, normal x3, depth]``. With candidate features on (``extras`` >= 0, the offset of their
+block), EXTRA_CHANNELS more: per event 1 and 2 ``[value, gradient magnitude, extinction, interface weight,
+light transmittance]``, then ``[opacity before event 1, expected-depth numerator, its denominator, optical depth,
+background part x3]`` (README, "Candidate features"). They use no random number of the path's own; the
+transmittance toward the first light draws its step offset from dimension DIM_FEATURE_LIGHT + event, so
+the radiance's bits do not depend on them.
 """
 
 import math
@@ -32,9 +37,11 @@ from .shading import (background_along, environment_radiance, event_frame, inter
 
 MAX_EVENTS = 4
 MAX_LEVELS = 2
-SCRATCH = 2 * MAX_EVENTS + 2 * MAX_LEVELS
+SCRATCH = 2 * MAX_EVENTS + 2 * MAX_LEVELS + 3      # + the whole chord's optical depth, the expected depth's two integrals
 N_BASE_CHANNELS = 10
 BLOCK = 8
+EXTRA_EVENT = 5
+EXTRA_CHANNELS = 2 * EXTRA_EVENT + 7
 
 # random dimensions per path
 DIM_JITTER = 0          # 0, 1
@@ -42,6 +49,7 @@ DIM_OFFSET = 2
 DIM_THRESHOLD = 3       # 3 .. 3 + MAX_EVENTS
 DIM_EVENT = 16          # event k uses DIM_EVENT + DIM_EVENT_STRIDE * k + ...
 DIM_EVENT_STRIDE = 64
+DIM_FEATURE_LIGHT = 1 << 31   # + event index: the step offset of a feature's transmittance toward the first light
 ROULETTE_BELOW = 0.02   # Russian roulette on shadow rays once transmittance falls below this
 ROULETTE_SURVIVE = 0.25
 ROULETTE_DEPTH = -math.log(ROULETTE_BELOW)   # compare optical depth, not exp(-tau), per step
@@ -165,11 +173,15 @@ def camera_ray(camera, seed, pixel, sample, row, col, width, height):
 
 @njit(**JIT)
 def march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixel, sample, px, py, pz, dx, dy, dz,
-                     collect_glow, skip, counts, row, scratch):
+                     collect_glow, extras, skip, counts, row, scratch):
     """The camera ray's march: writes the event and level distances into ``scratch`` (-1: none) and returns
     (optical depth, emitted radiance collected along the ray); the glow only when ``collect_glow``.
 
-    ``scratch`` (SCRATCH,) float64: event thresholds, level thresholds, event distances, level distances.
+    ``scratch`` (SCRATCH,) float64: event thresholds, level thresholds, event distances, level distances, and
+    with ``extras`` the whole chord's optical depth and the expected depth's ``int t T sigma dt`` and
+    ``int T sigma dt`` (exact per step of constant extinction). With ``extras`` the ray is marched on to the
+    box's exit, but the optical depth returned and the glow stop where they would have stopped without them,
+    so every other buffer keeps its bits.
     """
     _field, world_to_index, _index_to_world, _gradient_to_world, bricks, shape = volume
     albedo, extinction, lookup, emission, emitting = transfer
@@ -195,6 +207,10 @@ def march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixe
     glow0 = 0.0
     glow1 = 0.0
     glow2 = 0.0
+    depth_numerator = 0.0
+    depth_denominator = 0.0
+    terminated = False
+    tau_stop = 0.0
     if t1 > t0:
         u_offset = uniform(seed, pixel, sample, DIM_OFFSET)
         n_samples = 0
@@ -206,8 +222,11 @@ def march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixe
             ta, tb = segment_bounds(t0, t1, step, u_offset, j)
             if ta >= t1:
                 break
-            if next_event >= n_events and next_level >= n_levels and tau > TERMINATE_OPTICAL_DEPTH:
-                break
+            if not terminated and next_event >= n_events and next_level >= n_levels and tau > TERMINATE_OPTICAL_DEPTH:
+                if not extras:
+                    break
+                terminated = True
+                tau_stop = tau
             tm = 0.5 * (ta + tb)
             qx, qy, qz = ox + tm * ix, oy + tm * iy, oz + tm * iz
             if tm >= cell_end:       # entered another macrocell: look it up once
@@ -226,7 +245,7 @@ def march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixe
             while next_level < n_levels and tau + dtau >= level_targets[next_level]:
                 level_t[next_level] = ta + (level_targets[next_level] - tau) / sigma
                 next_level += 1
-            if collect_glow and emitting and sigma > 0.0:
+            if collect_glow and emitting and sigma > 0.0 and not terminated:
                 # absorption-emission (Max 1995): int T sigma_a L_e dt over the step, sigma_a = sigma (1 - albedo),
                 # exact for the step's constant extinction
                 absorbed = math.exp(-tau) * -math.expm1(-dtau)     # the step's share of the light, T(a) (1 - e^-dtau)
@@ -235,11 +254,20 @@ def march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixe
                 glow0 += absorbed * (1.0 - a0) * l0
                 glow1 += absorbed * (1.0 - a1) * l1
                 glow2 += absorbed * (1.0 - a2) * l2
+            if extras and sigma > 0.0:
+                # int over the step of t T sigma dt and of T sigma dt, T = T(a) e^{-sigma (t - a)}
+                transmitted = math.exp(-tau)
+                share = -math.expm1(-dtau)
+                depth_denominator += transmitted * share
+                depth_numerator += transmitted * (ta * share + (share - dtau * math.exp(-dtau)) / sigma)
             tau += dtau
             j += 1
         counts[row, 0] += n_samples
         counts[row, 1] += n_useful
-    return tau, glow0, glow1, glow2
+    scratch[SCRATCH - 3] = tau
+    scratch[SCRATCH - 2] = depth_numerator
+    scratch[SCRATCH - 1] = depth_denominator
+    return tau_stop if terminated else tau, glow0, glow1, glow2
 
 
 @njit(**JIT)
@@ -272,6 +300,48 @@ def add_levels(volume, levels, px, py, pz, dx, dy, dz, acc, row, col, counts, sc
 
 
 @njit(**JIT)
+def light_transmittance(bricks, shape, cells, world_to_index, extinction, lookup, lights, step, px, py, pz, seed,
+                        pixel, sample, event, skip, counts, row):
+    """Transmittance from p toward the first light (to its position, or out of the box), without roulette;
+    its step offset is dimension DIM_FEATURE_LIGHT + event. 0 without lights."""
+    if lights.shape[0] == 0:
+        return 0.0
+    lx, ly, lz, distance, _falloff = light_toward(lights, 0, px, py, pz)
+    if distance <= 0.0:
+        return 1.0
+    return transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, py, pz, lx, ly, lz, distance, step,
+                         np.inf, uniform(seed, pixel, sample, DIM_FEATURE_LIGHT + event), 0.0, skip, counts, row)
+
+
+@njit(**JIT)
+def add_event_extras(acc, row, col, extras, event, value, magnitude, sigma, weight, light_t):
+    """One sample's candidate features at event ``event`` (0 or 1) into the block at ``extras``."""
+    c = extras + EXTRA_EVENT * event
+    acc[row, col, c] += value
+    acc[row, col, c + 1] += magnitude
+    acc[row, col, c + 2] += sigma
+    acc[row, col, c + 3] += weight
+    acc[row, col, c + 4] += light_t
+
+
+@njit(**JIT)
+def add_camera_extras(acc, row, col, extras, b0, b1, b2, scratch):
+    """One sample's camera-ray features: opacity in front of event 1 (the whole ray's where it has none), the
+    expected depth's numerator and denominator, the optical depth to the exit, and the background part."""
+    c = extras + 2 * EXTRA_EVENT
+    event1 = scratch[MAX_EVENTS + MAX_LEVELS]
+    tau = scratch[SCRATCH - 3]
+    acc[row, col, c] += -math.expm1(-scratch[0]) if event1 >= 0.0 else -math.expm1(-tau)
+    acc[row, col, c + 1] += scratch[SCRATCH - 2]
+    acc[row, col, c + 2] += scratch[SCRATCH - 1]
+    acc[row, col, c + 3] += tau
+    transmitted = math.exp(-tau)
+    acc[row, col, c + 4] += transmitted * b0
+    acc[row, col, c + 5] += transmitted * b1
+    acc[row, col, c + 6] += transmitted * b2
+
+
+@njit(**JIT)
 def add_radiance(acc, row, col, r0, r1, r2, alpha):
     acc[row, col, 0] += r0
     acc[row, col, 1] += r1
@@ -284,8 +354,8 @@ def add_radiance(acc, row, col, r0, r1, r2, alpha):
 
 @njit(**JIT)
 def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-               background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, seed, row, col,
-               width, height, sample, skip, acc, counts, scratch):
+               background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, extras, seed, row,
+               col, width, height, sample, skip, acc, counts, scratch):
     """One sample path of pixel (row, col) (the default: march, single scattering); adds it to ``acc[row, col]``.
 
     ``scratch`` (SCRATCH,) float64 is the row's work space (allocated once per row, not per path).
@@ -296,7 +366,7 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
     px, py, pz, dx, dy, dz = camera_ray(camera, seed, pixel, sample, row, col, width, height)
     b0, b1, b2 = background_along(background_is_env, env_kind, env_colors, env_image, background, dx, dy, dz)
     tau, glow0, glow1, glow2 = march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixel, sample,
-                                                px, py, pz, dx, dy, dz, True, skip, counts, row, scratch)
+                                                px, py, pz, dx, dy, dz, True, extras >= 0, skip, counts, row, scratch)
     alpha = -math.expm1(-tau)
 
     # shade each stratum
@@ -329,7 +399,14 @@ def trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, en
                 acc[row, col, 7] += a0
                 acc[row, col, 8] += a1
                 acc[row, col, 9] += a2
+            if extras >= 0:
+                light_t = light_transmittance(bricks, shape, cells, world_to_index, extinction, lookup, lights, step,
+                                              qx, qy, qz, seed, pixel, sample, k, skip, counts, row)
+                add_event_extras(acc, row, col, extras, k, value, magnitude, extinction_at(extinction, lookup, value),
+                                 weight, light_t)
     add_levels(volume, levels, px, py, pz, dx, dy, dz, acc, row, col, counts, scratch)
+    if extras >= 0:
+        add_camera_extras(acc, row, col, extras, b0, b1, b2, scratch)
     add_radiance(acc, row, col, r0 / n_events + glow0, r1 / n_events + glow1, r2 / n_events + glow2, alpha)
 
 
@@ -350,7 +427,7 @@ def row_stride(n_rows):
 
 @njit(**JIT_PARALLEL)
 def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-                background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, seed,
+                background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, extras, seed,
                 row_start, row_end, sample_start, sample_end, skip, acc, counts, done):
     """Add samples [sample_start, sample_end) of rows [row_start, row_end) to ``acc``.
 
@@ -371,6 +448,7 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
     levels : (n_levels,) float64 opacity levels of the fixed feature events
     roulette_depth : float; shadow and environment rays play Russian roulette once their optical depth
         passes this (ROULETTE_DEPTH); infinity turns roulette off (for measurements)
+    extras : int; the channel where the candidate features' block starts, or -1 (off)
     acc : (H, W, C) float64 accumulator; each row is written by exactly one iteration, and
         each pixel receives its samples in increasing order, so the sums are bit-identical for
         any thread count or pass split.
@@ -392,5 +470,5 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
             for sample in range(sample_start, sample_end):
                 trace_path(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                            background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth,
-                           seed, row, col, width, height, sample, skip, acc, counts, scratch)
+                           extras, seed, row, col, width, height, sample, skip, acc, counts, scratch)
     done[0] = row_end

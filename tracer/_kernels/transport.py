@@ -17,9 +17,10 @@ import numpy as np
 from numba import njit, prange
 
 from ..config import JIT, JIT_PARALLEL
-from .integrate import (BLOCK, DIM_EVENT, DIM_EVENT_STRIDE, MAX_EVENTS, MAX_LEVELS, N_BASE_CHANNELS, SCRATCH, add_feature,
-                        add_levels, add_radiance, camera_ray, march_camera_ray, marched_direct_light, row_stride)
-from .sampling import albedo_at
+from .integrate import (BLOCK, DIM_EVENT, DIM_EVENT_STRIDE, MAX_EVENTS, MAX_LEVELS, N_BASE_CHANNELS, SCRATCH,
+                        add_camera_extras, add_event_extras, add_feature, add_levels, add_radiance, camera_ray,
+                        light_transmittance, march_camera_ray, marched_direct_light, row_stride)
+from .sampling import albedo_at, extinction_at
 from .shading import background_along, event_frame, interface_weight, sample_lobe
 from .tracking import follow_path, tracked_camera_path
 
@@ -29,8 +30,8 @@ ESTIMATOR_TRACK = 1
 
 @njit(**JIT)
 def trace_transport(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
-                    background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, bounces,
-                    estimator, track_cells, seed, row, col, width, height, sample, skip, acc, counts, scratch):
+                    background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth, extras,
+                    bounces, estimator, track_cells, seed, row, col, width, height, sample, skip, acc, counts, scratch):
     """One sample path of pixel (row, col) under ``bounces`` and ``estimator``; adds it to ``acc[row, col]``."""
     _field, world_to_index, _index_to_world, gradient_to_world, bricks, shape = volume
     albedo, extinction, lookup, _emission, _emitting = transfer
@@ -39,7 +40,8 @@ def trace_transport(volume, transfer, cells, camera, lights, env_kind, env_color
     px, py, pz, dx, dy, dz = camera_ray(camera, seed, pixel, sample, row, col, width, height)
     b0, b1, b2 = background_along(background_is_env, env_kind, env_colors, env_image, background, dx, dy, dz)
     tau, glow0, glow1, glow2 = march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixel, sample,
-                                                px, py, pz, dx, dy, dz, not track, skip, counts, row, scratch)
+                                                px, py, pz, dx, dy, dz, not track, extras >= 0, skip, counts, row,
+                                                scratch)
     alpha = -math.expm1(-tau)
 
     event_t = scratch[MAX_EVENTS + MAX_LEVELS:2 * MAX_EVENTS + MAX_LEVELS]
@@ -79,7 +81,14 @@ def trace_transport(volume, transfer, cells, camera, lights, env_kind, env_color
                 acc[row, col, 7] += a0
                 acc[row, col, 8] += a1
                 acc[row, col, 9] += a2
+            if extras >= 0:
+                light_t = light_transmittance(bricks, shape, cells, world_to_index, extinction, lookup, lights, step,
+                                              qx, qy, qz, seed, pixel, sample, k, skip, counts, row)
+                add_event_extras(acc, row, col, extras, k, value, magnitude, extinction_at(extinction, lookup, value),
+                                 interface_weight(scattering, gradient_scale, magnitude), light_t)
     add_levels(volume, levels, px, py, pz, dx, dy, dz, acc, row, col, counts, scratch)
+    if extras >= 0:
+        add_camera_extras(acc, row, col, extras, b0, b1, b2, scratch)
     if track:
         r0, r1, r2 = tracked_camera_path(volume, transfer, track_cells, lights, env_kind, env_colors, env_image, scattering, g,
                                          gradient_scale, roulette_depth, bounces, px, py, pz, dx, dy, dz, b0, b1, b2,
@@ -94,10 +103,10 @@ def trace_transport(volume, transfer, cells, camera, lights, env_kind, env_color
 @njit(**JIT_PARALLEL)
 def render_rows_transport(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                           background_is_env, scattering, n_events, levels, step, g, gradient_scale, roulette_depth,
-                          bounces, estimator, track_cells, seed, row_start, row_end, sample_start, sample_end, skip, acc,
-                          counts, done):
+                          extras, bounces, estimator, track_cells, seed, row_start, row_end, sample_start, sample_end, skip,
+                          acc, counts, done):
     """:func:`tracer._kernels.integrate.render_rows` (same arguments, same row order and ``done`` protocol) with
-    ``bounces`` (the most scattering events of a path), ``estimator`` (ESTIMATOR_MARCH or ESTIMATOR_TRACK) and
+    ``extras`` first, then ``bounces`` (the most scattering events of a path), ``estimator`` (ESTIMATOR_MARCH or ESTIMATOR_TRACK) and
     ``track_cells`` (the majorants of TRACK_CELL^3-voxel cells that tracking uses) before ``seed``."""
     width = acc.shape[1]
     n_rows = row_end - row_start
@@ -109,6 +118,6 @@ def render_rows_transport(volume, transfer, cells, camera, lights, env_kind, env
             for sample in range(sample_start, sample_end):
                 trace_transport(volume, transfer, cells, camera, lights, env_kind, env_colors, env_image, background,
                                 background_is_env, scattering, n_events, levels, step, g, gradient_scale,
-                                roulette_depth, bounces, estimator, track_cells, seed, row, col, width, acc.shape[0],
+                                roulette_depth, extras, bounces, estimator, track_cells, seed, row, col, width, acc.shape[0],
                                 sample, skip, acc, counts, scratch)
     done[0] = row_end

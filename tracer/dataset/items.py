@@ -152,6 +152,7 @@ def finish_chunked_reference(plan: DatasetPlan, item: ItemSpec, parts: list[dict
         sums += part["sums"]
     n_levels = len(plan.settings.feature_levels)
     accumulator = Accumulator(sums.shape[0], sums.shape[1], n_levels, first_sample=0, sums=sums,
+                              features=plan.settings.features,
                               n_samples=sum(part["n_samples"] for part in parts))
     meta = dict(parts[0]["meta"])
     meta.update(spp=accumulator.n_samples, first_sample=0, reference_chunks=len(parts))

@@ -23,7 +23,7 @@ from .._kernels.rng import mix64_numpy, uniform_numpy
 from ..scene.camera import Camera
 from ..errors import UserError
 from ..scene import ENVIRONMENTS, Environment, Light, RenderSettings
-from ..scene.parse import parse_scattering, parse_transport
+from ..scene.parse import parse_features, parse_scattering, parse_transport
 from ..optics.transfer import TransferFunction
 
 #: Input renders use sample indices from here on, references from 0: never the same indices.
@@ -369,10 +369,12 @@ def parse_plan(data: dict, path: Path) -> DatasetPlan:
     if len(levels) > 2 or (len(levels) == 2 and levels[1] <= levels[0]):
         raise render.error("feature_levels", f"expected at most 2 increasing levels, got {list(levels)}")
     bounces, estimator = parse_transport(render)
+    features = parse_features(render)
     render.finish()
     settings = RenderSettings(spp=reference_spp, seed=0, step_mm=step if step is not None else -1.0, events=events,
                               scattering=scattering, phase_g=phase_g, feature_levels=tuple(levels),
-                              interface_gradient=interface_gradient, bounces=bounces, estimator=estimator)
+                              interface_gradient=interface_gradient, bounces=bounces, estimator=estimator,
+                              features=features)
 
     splits_table = top.table("splits", {})
     splits_table = splits_table if isinstance(splits_table, Table) else Table(splits_table, path, "splits")

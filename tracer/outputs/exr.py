@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..rendering.buffers import Frame, buffer_specs
+from ..rendering.buffers import FEATURE_BUFFERS, Frame, buffer_specs
 from ..errors import UserError
 from ..io.atomic import atomic_path
 
@@ -24,7 +24,7 @@ def write_exr(path, frame: Frame) -> Path:
 
     path = Path(path)
     channels = {}
-    for spec in buffer_specs(frame.n_levels):
+    for spec in buffer_specs(frame.n_levels, frame.features):
         array = frame.buffers[spec.key]
         if spec.channels == 1:
             channels[spec.exr_channels[0]] = np.ascontiguousarray(array, dtype=np.float32)
@@ -62,8 +62,9 @@ def read_exr(path) -> Frame:
 
     channels, header = read_exr_channels(path)
     n_levels = sum(1 for name in channels if name.startswith("level") and name.endswith(".hit.Y"))
+    features = [spec.key for spec in FEATURE_BUFFERS if spec.exr_channels[0] in channels]
     buffers = {}
-    for spec in buffer_specs(n_levels):
+    for spec in buffer_specs(n_levels, features):
         missing = [name for name in spec.exr_channels if name not in channels]
         if missing:
             raise UserError(f"{path}: channel {missing[0]} missing")

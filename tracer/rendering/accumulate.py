@@ -17,20 +17,33 @@ from ..errors import UserError
 N_BASE_CHANNELS = 10
 BLOCK = 8
 EVENT_PREFIXES = ("event1", "event2", "level1", "level2")
+EVENT_FEATURES = ("value", "gradient", "extinction", "interface_weight", "light_transmittance")
+EXTRA_CHANNELS = 2 * len(EVENT_FEATURES) + 7       # the kernel's layout, tracer._kernels.integrate
 
 
-def n_channels(n_levels: int) -> int:
-    return N_BASE_CHANNELS + BLOCK * (2 + n_levels)
+def n_channels(n_levels: int, extras: bool = False) -> int:
+    return N_BASE_CHANNELS + BLOCK * (2 + n_levels) + (EXTRA_CHANNELS if extras else 0)
+
+
+def extras_offset(n_levels: int, extras: bool) -> int:
+    """Where the candidate features' channels start (the kernel's ``extras``), or -1 without them."""
+    return n_channels(n_levels) if extras else -1
 
 
 class Accumulator:
-    """Float64 sums for an H x W frame over a contiguous range of sample indices."""
+    """Float64 sums for an H x W frame over a contiguous range of sample indices.
 
-    def __init__(self, height: int, width: int, n_levels: int = 0, first_sample: int = 0, sums=None, n_samples=0):
+    ``features``: the candidate features to report (README, "Candidate features"); when any is asked
+    for, the kernel accumulates all of them and :meth:`to_buffers` returns those asked for.
+    """
+
+    def __init__(self, height: int, width: int, n_levels: int = 0, first_sample: int = 0, sums=None, n_samples=0,
+                 features=()):
         self.n_levels = n_levels
+        self.features = tuple(features)
         self.first_sample = int(first_sample)
         self.n_samples = int(n_samples)
-        self.sums = np.zeros((height, width, n_channels(n_levels))) if sums is None else sums
+        self.sums = np.zeros((height, width, n_channels(n_levels, bool(features)))) if sums is None else sums
 
     @property
     def next_sample(self) -> int:
@@ -63,7 +76,37 @@ class Accumulator:
                 out[f"{prefix}_normal"] = _safe_divide(s[..., block + 4:block + 7], count[..., None])
                 out[f"{prefix}_depth"] = _safe_divide(s[..., block + 7], count)
                 out[f"{prefix}_hit"] = count / max(n, 1)
-        return {key: np.ascontiguousarray(value, dtype=np.float32) for key, value in out.items()}
+            if self.features:
+                out.update(_feature_buffers(s, self.n_levels, n, out))
+        wanted = [key for key in out if not _is_feature(key) or key in self.features]
+        return {key: np.ascontiguousarray(out[key], dtype=np.float32) for key in wanted}
+
+
+def _is_feature(key: str) -> bool:
+    from .buffers import FEATURE_NAMES
+
+    return key in FEATURE_NAMES
+
+
+def _feature_buffers(s, n_levels: int, n: int, base: dict) -> dict[str, np.ndarray]:
+    """Every candidate feature from the sums (float64): event ones over the samples with the event, camera-ray
+    ones over all samples, the expected depth as a ratio of its sums, the illumination demodulated."""
+    from .buffers import ILLUMINATION_EPSILON
+
+    at = extras_offset(n_levels, True)
+    out = {}
+    for index, prefix in enumerate(("event1", "event2")):
+        count = s[..., N_BASE_CHANNELS + BLOCK * index]
+        for k, name in enumerate(EVENT_FEATURES):
+            out[f"{prefix}_{name}"] = _safe_divide(s[..., at + len(EVENT_FEATURES) * index + k], count)
+    c = at + 2 * len(EVENT_FEATURES)
+    out["opacity_before_event1"] = s[..., c] / max(n, 1)
+    out["expected_depth"] = _safe_divide(s[..., c + 1], s[..., c + 2])
+    out["optical_depth"] = s[..., c + 3] / max(n, 1)
+    background = s[..., c + 4:c + 7] / max(n, 1)
+    out["background_part"] = background
+    out["illumination"] = (base["radiance"] - background) / (base["albedo"] + ILLUMINATION_EPSILON)
+    return out
 
 
 def _safe_divide(numerator, denominator):
@@ -103,6 +146,9 @@ def merge_frames(frames: list[Frame]) -> Frame:
     m2 = None
     alpha = 0.0
     events: dict[str, list] = {}
+    features = first.features
+    feature_sums: dict[str, np.ndarray] = {}
+    feature_weights: dict[str, np.ndarray] = {}
     for frame in frames:
         n = int(frame.meta["spp"])
         b = {k: v.astype(np.float64) for k, v in frame.buffers.items()}
@@ -125,6 +171,23 @@ def merge_frames(frames: list[Frame]) -> Frame:
             sums[3] = sums[3] + b[f"{prefix}_depth"] * count
             if prefix == "event1":
                 sums[4] = sums[4] + b["albedo"] * count[..., None]
+        if "illumination" in features and "background_part" not in features:
+            from .buffers import ILLUMINATION_EPSILON
+
+            b["background_part"] = b["radiance"] - (b["albedo"] + ILLUMINATION_EPSILON) * b["illumination"]
+        pooled = [key for key in features if key != "illumination"]
+        if "illumination" in features and "background_part" not in pooled:
+            pooled.append("background_part")
+        for key in pooled:
+            if key.startswith("event"):
+                weight = np.rint(b[f"{key[:6]}_hit"] * n)        # over the samples with the event
+            elif key == "expected_depth":
+                weight = b["alpha"] * n          # its denominator, int T sigma dt, is alpha (to 1e-5: early termination)
+            else:
+                weight = np.full(b["alpha"].shape, float(n))
+            value = b[key] * (weight[..., None] if b[key].ndim == 3 else weight)
+            feature_sums[key] = feature_sums.get(key, 0.0) + value
+            feature_weights[key] = feature_weights.get(key, 0.0) + weight
     out = {
         "radiance": mean,
         "radiance_variance": m2 / (n_total - 1) / n_total if n_total > 1 else np.zeros_like(mean),
@@ -137,6 +200,13 @@ def merge_frames(frames: list[Frame]) -> Frame:
         out[f"{prefix}_hit"] = count / n_total
         if prefix == "event1":
             out["albedo"] = _safe_divide(albedo, count[..., None])
+    for key, total in feature_sums.items():
+        weight = feature_weights[key]
+        out[key] = _safe_divide(total, weight[..., None] if np.ndim(total) == 3 else weight)
+    if "illumination" in features:
+        from .buffers import ILLUMINATION_EPSILON
+
+        out["illumination"] = (out["radiance"] - out["background_part"]) / (out["albedo"] + ILLUMINATION_EPSILON)
     meta = dict(first.meta)
     meta.pop("source_file", None)
     meta.pop("compile_seconds", None)

@@ -20,6 +20,7 @@ def kernel_arguments(scene: Scene, skipping: bool = True, roulette: bool = True)
     ``roulette`` whether shadow and environment rays play Russian roulette (off only for measurements).
     """
     from .._kernels.integrate import ROULETTE_DEPTH
+    from .accumulate import extras_offset
 
     volume = scene.volume
     low, high = volume.value_range
@@ -42,6 +43,7 @@ def kernel_arguments(scene: Scene, skipping: bool = True, roulette: bool = True)
         np.ascontiguousarray(image, dtype=np.float32), background, environment.background is None,
         SCATTERING_CODES[settings.scattering], settings.events, np.asarray(settings.feature_levels, dtype=np.float64),
         float(settings.step_mm), float(settings.phase_g), gradient_scale, ROULETTE_DEPTH if roulette else np.inf,
+        extras_offset(len(settings.feature_levels), bool(settings.features)),
     ), bool(skipping)
 
 

@@ -54,8 +54,58 @@ def level_buffers(n_levels: int) -> list[BufferSpec]:
     return specs
 
 
-def buffer_specs(n_levels: int = 0) -> list[BufferSpec]:
-    return BASE_BUFFERS + level_buffers(n_levels)
+#: The demodulation's epsilon: ``illumination = (radiance - background_part) / (albedo + ILLUMINATION_EPSILON)``
+#: (an albedo floor as surface denoisers use; Bako et al. 2017).
+ILLUMINATION_EPSILON = 1e-3
+
+
+def _event_feature_specs(prefix: str, label: str) -> list[BufferSpec]:
+    return [
+        BufferSpec(f"{prefix}_value", 1, (f"{prefix}.value.Y",), "volume units", f"scalar value of the field at {label}"),
+        BufferSpec(f"{prefix}_gradient", 1, (f"{prefix}.gradient.Y",), "volume units / mm",
+                   f"gradient magnitude of the field at {label}, in world units"),
+        BufferSpec(f"{prefix}_extinction", 1, (f"{prefix}.extinction.Y",), "1/mm",
+                   f"extinction sigma of the transfer function at {label}"),
+        BufferSpec(f"{prefix}_interface_weight", 1, (f"{prefix}.interface_weight.Y",), "fraction",
+                   f"weight of the interface (Lambert) lobe at {label}"),
+        BufferSpec(f"{prefix}_light_transmittance", 1, (f"{prefix}.light_transmittance.Y",), "fraction",
+                   f"transmittance from {label} toward the first light"),
+    ]
+
+
+#: Candidate features (README, "Candidate features"): opt-in with ``[render] features``.
+FEATURE_BUFFERS = [
+    *_event_feature_specs("event1", "the first scatter event"),
+    *_event_feature_specs("event2", "the second scatter event"),
+    BufferSpec("opacity_before_event1", 1, ("opacity_before_event1.Y",), "fraction",
+               "opacity of the camera ray in front of event 1 (the whole ray's where there is none)"),
+    BufferSpec("expected_depth", 1, ("expected_depth.Z",), "mm",
+               "transmittance-weighted depth int t T sigma dt / int T sigma dt along the camera ray"),
+    BufferSpec("optical_depth", 1, ("optical_depth.Y",), "1", "optical depth of the camera ray to the volume's exit"),
+    BufferSpec("background_part", 3, tuple(f"background_part.{c}" for c in "RGB"), "linear RGB",
+               "the background seen through the volume, T(exit) x background"),
+    BufferSpec("illumination", 3, tuple(f"illumination.{c}" for c in "RGB"), "linear RGB",
+               f"demodulated radiance: (radiance - background_part) / (albedo + {ILLUMINATION_EPSILON:g})"),
+]
+FEATURE_NAMES = tuple(spec.key for spec in FEATURE_BUFFERS)
+
+
+def buffer_specs(n_levels: int = 0, features=()) -> list[BufferSpec]:
+    return BASE_BUFFERS + level_buffers(n_levels) + [spec for spec in FEATURE_BUFFERS if spec.key in features]
+
+
+def check_feature_names(names, where: str) -> tuple[str, ...]:
+    """The candidate features named (``"all"`` for every one), in the table's order; unknown names are a UserError."""
+    from ..errors import UserError
+
+    if not isinstance(names, (list, tuple)) or not all(isinstance(name, str) for name in names):
+        raise UserError(f"{where}: expected a list of feature names, got {names!r}")
+    if "all" in names:
+        return FEATURE_NAMES
+    for name in names:
+        if name not in FEATURE_NAMES:
+            raise UserError(f"{where}: unknown feature {name!r}; choose from all, {', '.join(FEATURE_NAMES)}")
+    return tuple(name for name in FEATURE_NAMES if name in names)
 
 
 @dataclass
@@ -83,6 +133,11 @@ class Frame:
     @property
     def n_levels(self) -> int:
         return sum(1 for key in self.buffers if key.startswith("level") and key.endswith("_hit"))
+
+    @property
+    def features(self) -> tuple[str, ...]:
+        """The candidate features this frame holds, in the table's order."""
+        return tuple(name for name in FEATURE_NAMES if name in self.buffers)
 
     def meta_json(self) -> str:
         return json.dumps(self.meta, sort_keys=True)

@@ -32,6 +32,7 @@ def save_checkpoint(path, accumulator: Accumulator, fingerprint: str, seconds: f
         with open(temporary, "wb") as handle:
             np.savez(handle, sums=accumulator.sums, n_samples=np.int64(accumulator.n_samples),
                      first_sample=np.int64(accumulator.first_sample), n_levels=np.int64(accumulator.n_levels),
+                     features=np.array(",".join(accumulator.features)),
                      fingerprint=np.array(fingerprint), seconds=np.float64(seconds))
 
 
@@ -44,6 +45,7 @@ def load_checkpoint(path, fingerprint: str, first_sample: int):
             n_samples = int(data["n_samples"])
             offset = int(data["first_sample"])
             n_levels = int(data["n_levels"])
+            features = tuple(name for name in str(data["features"]).split(",") if name) if "features" in data else ()
             seconds = float(data["seconds"])
     except (OSError, ValueError, KeyError, EOFError) as error:
         raise UserError(f"{path}: not a readable checkpoint: {error}")
@@ -52,4 +54,4 @@ def load_checkpoint(path, fingerprint: str, first_sample: int):
     if offset != first_sample:
         raise UserError(f"{path}: checkpoint starts at sample {offset}, not {first_sample}")
     return Accumulator(sums.shape[0], sums.shape[1], n_levels, first_sample=offset, sums=sums,
-                       n_samples=n_samples), seconds
+                       n_samples=n_samples, features=features), seconds

@@ -260,7 +260,8 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, fir
             raise UserError(f"{checkpoint_path}: no checkpoint to resume from")
         accumulator, previous_seconds = load_checkpoint(checkpoint_path, fingerprint(), first_sample)
     if accumulator is None:
-        accumulator = Accumulator(height, width, len(settings.feature_levels), first_sample=first_sample)
+        accumulator = Accumulator(height, width, len(settings.feature_levels), first_sample=first_sample,
+                                  features=settings.features)
 
     call = KernelCall(scene, skipping, roulette)
     planner = PassPlanner(height, pass_seconds)

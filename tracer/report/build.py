@@ -152,7 +152,7 @@ def _render_model(path: Path, version: str):
     from ..rendering.buffers import buffer_specs
 
     frame = read_npz(path)
-    specs = {spec.key: spec for spec in buffer_specs(frame.n_levels)}
+    specs = {spec.key: spec for spec in buffer_specs(frame.n_levels, frame.features)}
     meta = frame.meta
     entry = {"label": path.name, "role": "render", "bundle": "render", "status": "ok"}
     buffers = [{"key": key, "units": specs[key].units if key in specs else "",

@@ -85,10 +85,15 @@ class RenderSettings:
     interface_gradient: float = 0.15
     bounces: int = 1
     estimator: str = "march"
+    features: tuple[str, ...] = ()          # candidate features (rendering.buffers.FEATURE_NAMES), opt-in
 
     def to_dict(self) -> dict:
         out = dataclasses.asdict(self)
         out["feature_levels"] = list(self.feature_levels)
+        if self.features:
+            out["features"] = list(self.features)
+        else:
+            out.pop("features")                # renders without them keep their earlier meta, byte for byte
         return out
 
 
@@ -138,7 +143,8 @@ class Scene:
     def check_budget(self) -> None:
         from ..rendering.accumulate import n_channels
 
-        n_bytes = self.camera.image_size[0] * self.camera.image_size[1] * n_channels(len(self.settings.feature_levels)) * 8 * 2
+        n_bytes = (self.camera.image_size[0] * self.camera.image_size[1]
+                   * n_channels(len(self.settings.feature_levels), bool(self.settings.features)) * 8 * 2)
         if n_bytes > memory_budget():
             raise UserError(
                 f"{self.source}: camera.width x camera.height = {self.camera.width} x {self.camera.height} needs "

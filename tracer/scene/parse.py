@@ -182,10 +182,18 @@ def _parse_settings(table, volume: Volume) -> RenderSettings:
     if len(levels) == 2 and levels[1] <= levels[0]:
         raise table.error("feature_levels", f"levels must increase, got {list(levels)}")
     bounces, estimator = parse_transport(table)
+    features = parse_features(table)
     table.finish()
     return RenderSettings(spp=spp, seed=seed, step_mm=step, events=events, scattering=scattering, phase_g=phase_g,
                           feature_levels=tuple(levels), interface_gradient=interface_gradient, bounces=bounces,
-                          estimator=estimator)
+                          estimator=estimator, features=features)
+
+
+def parse_features(table) -> tuple[str, ...]:
+    """``features``: candidate feature buffers to add (README, "Candidate features"), or ``["all"]``."""
+    from ..rendering.buffers import check_feature_names
+
+    return check_feature_names(table.raw("features", []), table.where("features"))
 
 
 def parse_transport(table) -> tuple[int, str]:
