@@ -271,6 +271,21 @@ def report_of(name: str, content: bytes | None):
     return setup
 
 
+def scene_with_features(names: str):
+    def setup(tmp: Path):
+        text = (ROOT / "examples" / "plume.toml").read_text().replace('"../', f'"{ROOT}/')
+        path = tmp / "plume.toml"
+        path.write_text(text.replace("[render]\n", f"[render]\nfeatures = {names}\n", 1))
+        return ["render", path, "--spp", "1", "--out", tmp / "out"]
+    return setup
+
+
+CASES.append(Case("unknown candidate feature", "scene", scene_with_features('["expected_depth", "curvature"]'),
+                  "error: {tmp}/plume.toml: render.features: unknown feature 'curvature'; choose from all, "
+                  "event1_value, event1_gradient, event1_extinction, event1_interface_weight, event1_light_transmittance, "
+                  "event2_value, event2_gradient, event2_extinction, event2_interface_weight, event2_light_transmittance, "
+                  "opacity_before_event1, expected_depth, optical_depth, background_part, illumination"))
+
 REPORT_CASES = [
     Case("report of a folder that is no dataset", "report", report_of("renders", None), "error: {tmp}/renders: not a dataset folder (manifest.jsonl missing)"),
     Case("report of a JSON that is no score result", "report", report_of("scores.json", b'{"psnr": 30}'), "error: {tmp}/scores.json: not a score-dataset result (write one with tracer score-dataset --json)"),

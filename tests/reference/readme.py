@@ -49,3 +49,8 @@ def sky_ground_z() -> float:
 # "Camera rays stop once all their events are found and the transmittance is below 1e-5 (alpha is then exact to 1e-5)"
 def alpha_exactness() -> float:
     return number(r"alpha is then exact to ([0-9.e-]+)\)")
+
+
+# "`(radiance - background_part) / (albedo + 0.001)`"
+def illumination_epsilon() -> float:
+    return number(r"`\(radiance - background_part\) / \(albedo \+ ([0-9.e-]+)\)`")
