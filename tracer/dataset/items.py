@@ -96,6 +96,14 @@ def render_item_inputs(plan_path: str, fingerprint: str, index: int, out_dir: st
         for name, path in _write(frame, folder, f"spp{spp:04d}", plan.formats).items():
             files[name] = {"path": str(path.relative_to(Path(out_dir))), "spp": spp, "sample_range": [start, stop],
                            "seconds": round(seconds, 4), "role": "input"}
+    if plan.noisy_pairs:                   # the second of each pair: same spp, samples of its own
+        for spp, (start, stop) in zip(plan.input_spp, plan.pair_ranges()):
+            started = time.perf_counter()
+            frame = render(scene, spp=spp, first_sample=start)
+            seconds = time.perf_counter() - started
+            for name, path in _write(frame, folder, f"spp{spp:04d}_pair", plan.formats).items():
+                files[name] = {"path": str(path.relative_to(Path(out_dir))), "spp": spp, "sample_range": [start, stop],
+                               "seconds": round(seconds, 4), "role": "input_pair"}
     record = {"files": files, "jitter": jitter}
     if with_reference:
         started = time.perf_counter()
@@ -144,21 +152,42 @@ def _chunk_range(spp: int, chunks: int, chunk: int) -> tuple[int, int]:
     return int(edges[chunk]), int(edges[chunk + 1])
 
 
-def finish_chunked_reference(plan: DatasetPlan, item: ItemSpec, parts: list[dict], out_dir: Path, files: dict) -> dict:
-    """Add the chunks' sums in chunk order (the same on any executor) and write the reference."""
-    parts = sorted(parts, key=lambda part: part["chunk"])
+def _pooled_chunks(plan: DatasetPlan, parts: list[dict], first_sample: int) -> Accumulator:
+    """The sums of consecutive chunks added in chunk order (the same on any executor)."""
     sums = parts[0]["sums"].copy()
     for part in parts[1:]:
         sums += part["sums"]
-    n_levels = len(plan.settings.feature_levels)
-    accumulator = Accumulator(sums.shape[0], sums.shape[1], n_levels, first_sample=0, sums=sums,
-                              features=plan.settings.features,
-                              n_samples=sum(part["n_samples"] for part in parts))
+    return Accumulator(sums.shape[0], sums.shape[1], len(plan.settings.feature_levels), first_sample=first_sample,
+                       sums=sums, features=plan.settings.features, n_samples=sum(part["n_samples"] for part in parts))
+
+
+def finish_chunked_reference(plan: DatasetPlan, item: ItemSpec, parts: list[dict], out_dir: Path, files: dict) -> dict:
+    """Add the chunks' sums in chunk order and write the reference (and, with ``reference_halves``, its halves:
+    the first and the second half of the chunks, each a render of its own samples)."""
+    parts = sorted(parts, key=lambda part: part["chunk"])
+    accumulator = _pooled_chunks(plan, parts, 0)
     meta = dict(parts[0]["meta"])
     meta.update(spp=accumulator.n_samples, first_sample=0, reference_chunks=len(parts))
     frame = Frame(buffers=accumulator.to_buffers(), meta=meta)
     folder = out_dir / "items" / item.item_id
-    return _reference_record(plan, frame, sum(part["seconds"] for part in parts), folder, out_dir, files)
+    seconds = sum(part["seconds"] for part in parts)
+    if plan.reference_halves:
+        halves = []
+        middle = len(parts) // 2
+        for number, group in ((1, parts[:middle]), (2, parts[middle:])):
+            half = _pooled_chunks(plan, group, group[0]["first_sample"])
+            half_meta = dict(meta)
+            half_meta.update(spp=half.n_samples, first_sample=half.first_sample, reference_chunks=len(group))
+            half_frame = Frame(buffers=half.to_buffers(), meta=half_meta)
+            halves.append(half_frame)
+            for name, path in _write(half_frame, folder, f"reference_half{number}", plan.formats).items():
+                files[name] = {"path": str(path.relative_to(Path(out_dir))), "spp": half.n_samples,
+                               "sample_range": [half.first_sample, half.first_sample + half.n_samples],
+                               "seconds": round(sum(part["seconds"] for part in group), 4), "role": "reference_half"}
+        # the reference's radiance is the mean of the halves' stored values: the halves average to it exactly
+        mean = (halves[0]["radiance"].astype(np.float64) + halves[1]["radiance"].astype(np.float64)) / 2.0
+        frame.buffers["radiance"] = mean.astype(np.float32)
+    return _reference_record(plan, frame, seconds, folder, out_dir, files)
 
 
 def finish_record(plan: DatasetPlan, item: ItemSpec, partial: dict, out_dir: Path) -> dict:

@@ -94,6 +94,8 @@ class DatasetPlan:
     splits: tuple[tuple[str, float], ...]
     split_by: str
     raw: dict = dataclasses.field(default_factory=dict, repr=False)
+    noisy_pairs: bool = False          # a second render of every input spp over its own samples
+    reference_halves: bool = False     # the reference also written as two halves of its samples
 
     @cached_property
     def medical(self) -> bool:
@@ -237,6 +239,15 @@ class DatasetPlan:
             start += spp
         return ranges
 
+    def pair_ranges(self) -> list[tuple[int, int]]:
+        """The second render of each input (``noisy_pairs``): ranges after the last input's, disjoint from all."""
+        ranges = []
+        start = INPUT_SAMPLE_BASE + sum(self.input_spp)
+        for spp in self.input_spp:
+            ranges.append((start, start + spp))
+            start += spp
+        return ranges
+
 
 def _cut(order, splits) -> dict:
     """Assign names to the ordered keys by cumulative fractions (largest-remainder rounding)."""
@@ -359,6 +370,17 @@ def parse_plan(data: dict, path: Path) -> DatasetPlan:
                            "not reference_target_error or reference_min_psnr")
     if chunks > reference_spp:
         raise render.error("reference_chunks", f"{chunks} chunks for {reference_spp} spp")
+    noisy_pairs = render.boolean("noisy_pairs", False)
+    halves = render.boolean("reference_halves", False)
+    if halves:
+        if target_error is not None or min_psnr is not None:
+            raise render.error("reference_halves", "halves need a fixed reference_spp, "
+                               "not reference_target_error or reference_min_psnr")
+        if reference_spp % 2:
+            raise render.error("reference_halves", f"halves need an even reference_spp, got {reference_spp}")
+        if chunks % 2 and chunks > 1:
+            raise render.error("reference_halves", f"halves need an even reference_chunks (each half its own chunks), got {chunks}")
+        chunks = max(chunks, 2)
     step = render.number("step_mm", None, low=0.0, low_open=True)
     events = render.integer("events", 2, low=1, high=4)
     scattering, interface_gradient = parse_scattering(render)
@@ -401,6 +423,7 @@ def parse_plan(data: dict, path: Path) -> DatasetPlan:
         reference_spp=reference_spp, reference_target_error=target_error, reference_min_psnr=min_psnr,
         reference_chunks=chunks, settings=settings, splits=tuple(splits), split_by=split_by,
         raw=json.loads(json.dumps(data, default=str)) | {"__base__": str(base.resolve())},
+        noisy_pairs=noisy_pairs, reference_halves=halves,
     )
 
 
