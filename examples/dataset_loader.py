@@ -6,6 +6,10 @@ dependency). Copy this file into your training code and adapt the feature list.
     from dataset_loader import iterate_pairs
     for noisy, features, reference in iterate_pairs("lab-demo", split="train", input_spp=4):
         ...   # noisy (H, W, 3), features (H, W, C), reference (H, W, 3), float32, linear radiance
+
+    from dataset_loader import iterate_samples
+    for sample in iterate_samples("renders/figurine.samples"):    # tracer render ... --per-sample 16
+        ...   # (H, W, 3 + 3 + 3 + 1 + 1): one sample's radiance, albedo, normal, depth, alpha
 """
 
 from __future__ import annotations
@@ -47,6 +51,24 @@ def iterate_pairs(folder, split: str | None = "train", input_spp: int = 1, names
         noisy = load_npz(folder / files[f"spp{input_spp:04d}.npz"]["path"])
         reference = load_npz(folder / files["reference.npz"]["path"])
         yield noisy["radiance"], stack_features(noisy, names), reference["radiance"]
+
+
+#: Per-sample buffers (``tracer render --per-sample S``) stacked per sample, in this order.
+SAMPLE_BUFFERS = ("radiance", "albedo", "event1_normal", "event1_depth", "alpha")
+
+
+def iterate_samples(samples_folder, names=SAMPLE_BUFFERS, pixels=(slice(None), slice(None))):
+    """Yield, sample by sample, an (H, W, C) float32 stack of ``names`` from a ``NAME.samples`` folder.
+
+    The files are memory-mapped: only the sample (and the ``pixels`` window, e.g. a training crop)
+    being read is loaded, so S samples of a large image never sit in memory together.
+    """
+    folder = Path(samples_folder)
+    index = json.loads((folder / "samples.json").read_text())
+    arrays = [np.load(folder / f"{name}.npy", mmap_mode="r") for name in names]
+    for k in range(index["spp"]):
+        planes = [a[(k, *pixels)] for a in arrays]
+        yield np.concatenate([p[..., None] if p.ndim == 2 else p for p in planes], axis=-1).astype(np.float32)
 
 
 try:  # pragma: no cover - only where torch is installed

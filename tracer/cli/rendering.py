@@ -39,6 +39,9 @@ def render(
     resume: Annotated[bool, typer.Option("--resume", help="Continue from the checkpoint in --out (bit-exact).")] = False,
     sheet: Annotated[bool, typer.Option("--sheet", help="Also write NAME.sheet.png with every buffer, labelled.")] = False,
     exposure: Annotated[float, typer.Option(help="Exposure in stops for the PNG preview and sheet.")] = 0.0,
+    per_sample: Annotated[Optional[int], typer.Option("--per-sample", help="Also write the first S samples of every "
+                          "pixel one by one, to OUT/NAME.samples/ (one .npy per buffer, (S, H, W[, C]), read lazily "
+                          "with numpy.load(..., mmap_mode='r')).")] = None,
     threads: threads_option = None,
     sample_offset: Annotated[Optional[int], typer.Option("--sample-offset", hidden=True)] = None,
 ):
@@ -72,6 +75,14 @@ def render(
         from ..errors import UserError
 
         raise UserError(f"{checkpoint}: no checkpoint to resume from (render with --checkpoint-every first)")
+    writer = None
+    if per_sample is not None:
+        from ..errors import UserError
+        from ..outputs.samples import SampleWriter
+
+        if target_error is not None or time_limit is not None:
+            raise UserError("--per-sample: needs a fixed --spp, not --target-error or --time-limit")
+        writer = SampleWriter(out, name, per_sample)
     if checkpoint_path is not None:
         out.mkdir(parents=True, exist_ok=True)
     cam = loaded.camera
@@ -91,9 +102,15 @@ def render(
 
         frame = render_scene(loaded, spp=spp, first_sample=first_sample, target_error=target_error, time_limit=time_limit,
                              threads=threads, on_progress=report, checkpoint_path=checkpoint_path,
-                             checkpoint_every=checkpoint_every, resume=resume)
+                             checkpoint_every=checkpoint_every, resume=resume, per_sample=writer)
         progress.update(task, completed=frame.spp, total=frame.spp if target_error else total)
     paths = save_frame(frame, out, name, formats, exposure, sheet)
+    if writer is not None:
+        if frame.meta["stopped"] == "interrupted" and writer.written < writer.count:
+            writer.abort()
+            error_console.print(f"[yellow]note:[/yellow] the per-sample output was not finished, so it was not written")
+        else:
+            paths.append(writer.finish())
     medical_note(loaded)
     meta = frame.meta
     if meta["compile_seconds"] >= 0.05:

@@ -197,7 +197,7 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, fir
            threads: int | None = None,
            on_progress: Callable[[RenderProgress], None] | None = None, checkpoint_path=None,
            checkpoint_every: float | None = None, resume: bool = False, pass_seconds: float = 0.4,
-           skipping: bool = True, roulette: bool = True) -> Frame:
+           skipping: bool = True, roulette: bool = True, per_sample=None) -> Frame:
     """Path-trace ``scene`` and return its buffers.
 
     Parameters
@@ -228,6 +228,10 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, fir
     roulette : bool
         Russian roulette on shadow and environment rays once their transmittance falls below 0.02
         (unbiased; off only for measurements: slower, the same expected image).
+    per_sample : optional
+        A sink (``tracer.outputs.samples.SampleWriter``) with ``count`` and ``add(accumulator)``: the first
+        ``count`` samples are rendered one pass each and handed to it before they join the sums (the same
+        additions in the same order, so the render's bits do not change).
 
     Returns
     -------
@@ -262,6 +266,9 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, fir
     if accumulator is None:
         accumulator = Accumulator(height, width, len(settings.feature_levels), first_sample=first_sample,
                                   features=settings.features)
+    if per_sample is not None and (resume or per_sample.count > rule.spp_cap):
+        raise UserError("--per-sample: cannot be combined with --resume" if resume else
+                        f"--per-sample: {per_sample.count} samples asked for, but the render takes at most {rule.spp_cap} spp")
 
     call = KernelCall(scene, skipping, roulette)
     planner = PassPlanner(height, pass_seconds)
@@ -282,7 +289,16 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, fir
         try:
             while accumulator.n_samples < rule.spp_cap:
                 n = min(planner.spp_per_pass, rule.spp_cap - accumulator.n_samples)
-                run_pass(call, accumulator, planner, n, lambda rows: report(rows, n))
+                if per_sample is not None and accumulator.n_samples < per_sample.count:
+                    n = 1
+                    one = Accumulator(height, width, len(settings.feature_levels), first_sample=accumulator.next_sample,
+                                      features=settings.features)
+                    run_pass(call, one, planner, 1, lambda rows: report(rows, 1))
+                    per_sample.add(one)
+                    accumulator.sums += one.sums          # each channel gains one value per sample: the same bits
+                    accumulator.n_samples += 1
+                else:
+                    run_pass(call, accumulator, planner, n, lambda rows: report(rows, n))
                 elapsed = time.perf_counter() - start
                 noise = rule.noise(accumulator)
                 report()
