@@ -152,3 +152,60 @@ def atrous_pass(color, variance, normal, depth, depth_gradient, albedo, position
             out_color[row, col, 1] = s1 / weight_sum
             out_color[row, col, 2] = s2 / weight_sum
             out_variance[row, col] = variance_sum / (weight_sum * weight_sum)
+
+
+@njit(**JIT_PARALLEL)
+def guided_pass(color, variance, guides, group, group_sigma2, spread, sigma_luminance, spread_factor, step,
+                out_color, out_variance):
+    """One a-trous pass like :func:`atrous_pass`, guided by any stack of buffers.
+
+    guides (H, W, G) float32, each channel scaled to about [0, 1]; group (G,) int64: the guide buffer each
+    channel belongs to; group_sigma2 (B,) float64: that buffer's squared edge scale; spread (H, W, B) float32:
+    each buffer's local spread (its 3 x 3 variance, summed over its channels), which softens its term by
+    ``spread_factor`` so a noisy guide cuts only where it is sure. A tap's weight is the B3 kernel times
+    exp(-(luminance term + sum over buffers of |g_p - g_q|^2 / (sigma^2 + spread_factor (s_p + s_q)))).
+    """
+    height, width = variance.shape
+    n_channels = guides.shape[2]
+    n_groups = group_sigma2.shape[0]
+    for row in prange(height):
+        distance2 = np.zeros(n_groups)
+        for col in range(width):
+            lp = luminance(color[row, col, 0], color[row, col, 1], color[row, col, 2])
+            sd = math.sqrt(max(variance[row, col], 0.0))
+            s0 = 0.0
+            s1 = 0.0
+            s2 = 0.0
+            weight_sum = 0.0
+            variance_sum = 0.0
+            for i in range(5):
+                r = row + (i - 2) * step
+                if r < 0 or r >= height:
+                    continue
+                for j in range(5):
+                    c = col + (j - 2) * step
+                    if c < 0 or c >= width:
+                        continue
+                    w = B3[i] * B3[j]
+                    if r != row or c != col:
+                        exponent = 0.0
+                        if sigma_luminance > 0:
+                            lq = luminance(color[r, c, 0], color[r, c, 1], color[r, c, 2])
+                            exponent += abs(lp - lq) / (sigma_luminance * sd + 1e-6)
+                        for b in range(n_groups):
+                            distance2[b] = 0.0
+                        for k in range(n_channels):
+                            d = guides[row, col, k] - guides[r, c, k]
+                            distance2[group[k]] += d * d
+                        for b in range(n_groups):
+                            exponent += distance2[b] / (group_sigma2[b] + spread_factor * (spread[row, col, b] + spread[r, c, b]))
+                        w *= math.exp(-exponent)
+                    s0 += w * color[r, c, 0]
+                    s1 += w * color[r, c, 1]
+                    s2 += w * color[r, c, 2]
+                    weight_sum += w
+                    variance_sum += w * w * variance[r, c]
+            out_color[row, col, 0] = s0 / weight_sum
+            out_color[row, col, 1] = s1 / weight_sum
+            out_color[row, col, 2] = s2 / weight_sum
+            out_variance[row, col] = variance_sum / (weight_sum * weight_sum)

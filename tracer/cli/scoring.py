@@ -9,13 +9,14 @@ import typer
 
 from rich.markup import escape
 
-from .common import console, reports_user_errors, threads_option
+from .common import console, error_console, reports_user_errors, threads_option
 
 
 def register(app: typer.Typer) -> None:
     app.command("score")(score)
     app.command("score-dataset")(score_dataset)
     app.command("denoise")(denoise)
+    app.command("feature-study")(feature_study)
 
 
 def aligned_rows(rows) -> list[str]:
@@ -188,3 +189,39 @@ def denoise(
     console.print(f"filtered {escape(input.name)} in {result.seconds:.3f} s "
                   f"({'colour only' if color_only else 'feature-guided'}, noise from the {result.variance_source} variance)")
     console.print(f"  wrote {escape(str(target))}")
+
+
+@reports_user_errors
+def feature_study(
+    folder: Annotated[Path, typer.Argument(help="Dataset folder (with manifest.jsonl).")],
+    out: Annotated[Path, typer.Option("--out", help="Folder for study.txt, study.csv, noise.csv, study.json, study.png.")],
+    spp: Annotated[int, typer.Option(help="Filter each item's input of this spp (it must be on the ladder).")] = 1,
+    sets: Annotated[Optional[Path], typer.Option(help="A TOML file of extra guide sets: [[sets]] name = \"...\", "
+                    "buffers = [\"event1_normal\", ...].")] = None,
+    threads: threads_option = None,
+):
+    """Which guide buffers help the baseline filter on this dataset, and how noisy each buffer is.
+
+    Runs the a-trous baseline on every item's input with each guide set (colour only, + normal,
+    + albedo, + depth, + event 2, + each candidate feature the inputs hold, all, and --sets),
+    scores it against the references (PSNR, SSIM, equal-quality spp, per split) and ranks the
+    sets; the noise report gives each feature buffer's relative noise against its converged value
+    and how well its edges line up with the reference radiance's.
+    """
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+    from ..config import check_threads
+    from ..outputs.save import check_output_folder
+    from ..scoring.study import run_study, study_plan, study_text, write_study
+
+    check_threads(threads)
+    study_plan(folder, spp, sets)                 # every check before any work
+    check_output_folder(out)
+    with Progress(TextColumn("[bold]items"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+                  console=error_console, transient=True) as progress:
+        task = progress.add_task("items", total=None)
+        result = run_study(folder, spp=spp, sets_path=sets, threads=threads,
+                           on_progress=lambda done, total: progress.update(task, completed=done, total=total))
+    console.print(escape(study_text(result)), highlight=False)
+    for path in write_study(result, out):
+        console.print(f"wrote {escape(str(path))}")

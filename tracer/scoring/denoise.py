@@ -117,3 +117,64 @@ def _filter(frame: Frame, settings: DenoiseSettings, threads: int | None, *, spp
             color, out_color = out_color, color
             variance, out_variance = out_variance, variance
     return (color * factor).astype(np.float32), source
+
+
+#: Guide buffers are scaled to about [0, 1] by their 1st and 99th percentiles, and cut at edges of
+#: GUIDE_SIGMA on that scale (feature normalisation as in learned denoisers, e.g. Bako et al. 2017).
+GUIDE_SIGMA = 0.1
+
+
+def denoise_guided(frame: Frame, guides, settings: DenoiseSettings = DenoiseSettings(),
+                   threads: int | None = None) -> np.ndarray:
+    """The a-trous baseline guided by any list of buffer keys of ``frame`` (the feature study's filter).
+
+    With no guides it is exactly :func:`denoise` with ``color_only``. Otherwise each guide buffer is
+    scaled by its 1st-99th percentile range, has edge scale GUIDE_SIGMA, and is softened by its own
+    local noise (3 x 3 spread x ``settings.spread_factor``), so the same rule serves normals, depths,
+    scalar values or any candidate feature. Returns the filtered radiance (H, W, 3) float32.
+    """
+    import dataclasses
+
+    from .._kernels.atrous import guided_pass, spatial_variance
+    from ..config import num_threads
+
+    if not guides:
+        return denoise(frame, dataclasses.replace(settings, color_only=True), threads).radiance
+    color = np.array(frame["radiance"], dtype=np.float32, order="C")      # a copy: the passes write into it
+    height, width = color.shape[:2]
+    stack, group, spreads = [], [], []
+    for index, key in enumerate(guides):
+        array = np.asarray(frame[key], dtype=np.float64)
+        array = array[..., None] if array.ndim == 2 else array
+        low, high = np.percentile(array, [1.0, 99.0])
+        scaled = (array - low) / (high - low if high > low else 1.0)
+        stack.append(scaled)
+        group += [index] * scaled.shape[-1]
+        spreads.append(_local_spread(scaled))
+    guide_stack = np.ascontiguousarray(np.concatenate(stack, axis=-1), dtype=np.float32)
+    spread = np.ascontiguousarray(np.stack(spreads, axis=-1), dtype=np.float32)
+    group_sigma2 = np.full(len(guides), GUIDE_SIGMA ** 2)
+    with num_threads(threads):
+        if frame.meta.get("spp", 1) >= 2:
+            v = np.asarray(frame["radiance_variance"], dtype=np.float64)
+            variance = (0.2126**2 * v[..., 0] + 0.7152**2 * v[..., 1] + 0.0722**2 * v[..., 2]).astype(np.float32)
+        else:
+            variance = np.empty((height, width), np.float32)
+            spatial_variance(color, 2, variance)
+        out_color = np.empty_like(color)
+        out_variance = np.empty_like(variance)
+        for iteration in range(settings.iterations):
+            guided_pass(color, variance, guide_stack, np.asarray(group, np.int64), group_sigma2, spread,
+                        settings.sigma_luminance, settings.spread_factor, 1 << iteration, out_color, out_variance)
+            color, out_color = out_color, color
+            variance, out_variance = out_variance, variance
+    return color.astype(np.float32)
+
+
+def _local_spread(scaled: np.ndarray) -> np.ndarray:
+    """The 3 x 3 variance of a guide (edge-replicated), summed over its channels: (H, W) float64."""
+    padded = np.pad(scaled, ((1, 1), (1, 1), (0, 0)), mode="edge")
+    height, width = scaled.shape[:2]
+    windows = [padded[r:r + height, c:c + width] for r in range(3) for c in range(3)]
+    mean = sum(windows) / 9.0
+    return (sum(w * w for w in windows) / 9.0 - mean * mean).clip(min=0.0).sum(axis=-1)

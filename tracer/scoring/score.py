@@ -111,7 +111,7 @@ def ladder_paths(entries) -> list[Path]:
     for entry in entries:
         entry = Path(entry)
         if entry.is_dir():
-            found = sorted(entry.glob("spp*.npz"))
+            found = sorted(p for p in entry.glob("spp*.npz") if p.stem[3:].isdigit())   # not the *_pair twins
             if not found:
                 raise UserError(f"{entry}: no spp*.npz renders in this folder")
             paths.extend(found)
