@@ -42,12 +42,19 @@ def render(
     per_sample: Annotated[Optional[int], typer.Option("--per-sample", help="Also write the first S samples of every "
                           "pixel one by one, to OUT/NAME.samples/ (one .npy per buffer, (S, H, W[, C]), read lazily "
                           "with numpy.load(..., mmap_mode='r')).")] = None,
+    workers: Annotated[Optional[int], typer.Option(help="Spread the samples over a local Dask cluster of this many "
+                       "worker processes (in chunks of --chunk-spp, pooled in chunk order).")] = None,
+    scheduler: Annotated[Optional[str], typer.Option(help="Spread the samples over an existing Dask cluster, "
+                         "tcp://HOST:PORT (every worker must see the scene's files at the same paths).")] = None,
+    chunk_spp: Annotated[Optional[int], typer.Option(help="Samples per chunk (default: four chunks per worker); "
+                         "alone, renders the chunks here, bit-identical to the cluster render with the same chunks.")] = None,
     threads: threads_option = None,
     sample_offset: Annotated[Optional[int], typer.Option("--sample-offset", hidden=True)] = None,
 ):
     """Path-trace a scene and write its buffers (NPZ always; EXR and PNG as asked).
 
     Ctrl-C writes what is done as a valid render with its true spp (and a checkpoint to --resume from).
+    With --workers or --scheduler the sample range is cut into chunks rendered on the cluster.
     """
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
@@ -75,6 +82,22 @@ def render(
         from ..errors import UserError
 
         raise UserError(f"{checkpoint}: no checkpoint to resume from (render with --checkpoint-every first)")
+    distributed = workers is not None or scheduler is not None or chunk_spp is not None
+    if distributed:
+        from ..distributed.client import check_scheduler_address
+        from ..errors import UserError
+
+        if workers is not None and scheduler is not None:
+            raise UserError("--workers and --scheduler: give one or the other")
+        if workers is not None and workers < 1:
+            raise UserError(f"--workers: must be at least 1, got {workers}")
+        if scheduler is not None:
+            check_scheduler_address(scheduler)
+        if chunk_spp is not None and chunk_spp < 1:
+            raise UserError(f"--chunk-spp: must be at least 1, got {chunk_spp}")
+        for given, option in ((per_sample, "--per-sample"), (time_limit, "--time-limit")):
+            if given is not None:
+                raise UserError(f"{option}: not available for a render in chunks (--workers, --scheduler, --chunk-spp)")
     writer = None
     if per_sample is not None:
         from ..errors import UserError
@@ -100,9 +123,22 @@ def render(
                 status += f", rel. error {state.relative_error:.4f}"
             progress.update(task, completed=state.spp_done, status=status)
 
-        frame = render_scene(loaded, spp=spp, first_sample=first_sample, target_error=target_error, time_limit=time_limit,
-                             threads=threads, on_progress=report, checkpoint_path=checkpoint_path,
-                             checkpoint_every=checkpoint_every, resume=resume, per_sample=writer)
+        if distributed:
+            from ..distributed.render import default_chunk_spp, render_chunked
+
+            cap = spp if spp is not None else (None if target_error else loaded.settings.spp)
+            chunk = chunk_spp or default_chunk_spp(cap or 65536, workers or 1)
+            progress.update(task, status="starting the cluster" if chunk_spp is None or workers or scheduler else "")
+            frame = render_chunked(scene, overrides=dict(spp=spp, seed=seed, width=width, height=height, bounces=bounces,
+                                                         estimator=estimator),
+                                   chunk_spp=chunk, first_sample=first_sample, target_error=target_error,
+                                   workers=workers, scheduler=scheduler, numba_threads=threads,
+                                   checkpoint_path=checkpoint_path, resume=resume, on_progress=report)
+        else:
+            frame = render_scene(loaded, spp=spp, first_sample=first_sample, target_error=target_error,
+                                 time_limit=time_limit, threads=threads, on_progress=report,
+                                 checkpoint_path=checkpoint_path, checkpoint_every=checkpoint_every, resume=resume,
+                                 per_sample=writer)
         progress.update(task, completed=frame.spp, total=frame.spp if target_error else total)
     paths = save_frame(frame, out, name, formats, exposure, sheet)
     if writer is not None:
