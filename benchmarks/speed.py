@@ -157,17 +157,33 @@ def transport_rates(size: int = 128, spp: int = 16) -> dict:
     return out
 
 
+def cluster_speedup(size: int = 256, spp: int = 256) -> dict:
+    """One figurine render of size^2 at spp on a local cluster of 1 and of 2 workers (one numba thread each),
+    cluster start included (README, "One render on a cluster")."""
+    from tracer.distributed.render import default_chunk_spp, render_chunked
+
+    out = {"size": size, "spp": spp}
+    for workers in (1, 2):
+        start = time.perf_counter()
+        render_chunked(ROOT / "examples" / "figurine.toml", overrides={"spp": spp, "width": size, "height": size},
+                       chunk_spp=default_chunk_spp(spp, workers), workers=workers, numba_threads=1)
+        out[f"seconds_{workers}_worker{'s' if workers > 1 else ''}"] = time.perf_counter() - start
+    out["speedup"] = out["seconds_1_worker"] / out["seconds_2_workers"]
+    return out
+
+
 def main() -> None:
     import argparse
 
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
-    parser.add_argument("--only", choices=["transport"], help="measure only this part; keep the rest of speed.json")
+    parser.add_argument("--only", choices=["transport", "cluster"], help="measure only this part; keep the rest of speed.json")
     args = parser.parse_args()
     results = ROOT / "benchmarks" / "results" / "speed.json"
-    if args.only == "transport":
+    if args.only is not None:
         report = json.loads(results.read_text())
-        report["transport"] = transport_rates()
+        report[args.only] = transport_rates() if args.only == "transport" else cluster_speedup()
         results.write_text(json.dumps(report, indent=2))
+        print(json.dumps(report[args.only], indent=1))
         return
 
     import numba
@@ -240,6 +256,7 @@ def main() -> None:
                                       / sizes["128"]["renderer_effective_samples_per_second"])
     report["volume_size"] = sizes
     report["transport"] = transport_rates()
+    report["cluster"] = cluster_speedup()
 
     (ROOT / "benchmarks" / "results").mkdir(parents=True, exist_ok=True)
     (ROOT / "benchmarks" / "results" / "speed.json").write_text(json.dumps(report, indent=2))

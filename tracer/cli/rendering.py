@@ -93,6 +93,9 @@ def render(
             raise UserError(f"--workers: must be at least 1, got {workers}")
         if scheduler is not None:
             check_scheduler_address(scheduler)
+            if threads is not None:
+                raise UserError("--threads: an existing cluster's workers keep their own thread count "
+                                "(set NUMBA_NUM_THREADS where they start)")
         if chunk_spp is not None and chunk_spp < 1:
             raise UserError(f"--chunk-spp: must be at least 1, got {chunk_spp}")
         for given, option in ((per_sample, "--per-sample"), (time_limit, "--time-limit")):
