@@ -118,7 +118,7 @@ def plot(results: dict, path: Path) -> None:
     axis.invert_yaxis()
     axis.axvline(0, color="#333333", linewidth=0.8)
     axis.set_xlabel("mean PSNR gain over colour only (dB), baseline filter on 1-spp inputs")
-    axis.legend(loc="lower right")
+    axis.legend(loc="upper right")
     figure.tight_layout()
     figure.savefig(path, dpi=100)
     plt.close(figure)
