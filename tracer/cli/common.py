@@ -81,3 +81,24 @@ def former_command(old: str, new: str):
 
     command.__doc__ = f"Now `tracer {new}`."
     return command
+
+
+def check_cluster_options(workers, scheduler, threads) -> None:
+    """``--workers``, ``--scheduler`` and ``--threads`` as every command that can run on Dask takes them."""
+    from ..config import check_threads
+    from ..distributed.client import check_scheduler_address
+    from ..errors import UserError
+
+    if workers is not None and scheduler is not None:
+        raise UserError("--workers and --scheduler: give one or the other")
+    if workers is not None and workers < 1:
+        raise UserError(f"--workers: must be at least 1, got {workers}")
+    if scheduler is not None:
+        check_scheduler_address(scheduler)
+        if threads is not None:
+            raise UserError("--threads: an existing cluster's workers keep their own thread count "
+                            "(set NUMBA_NUM_THREADS where they start)")
+    if workers is None:
+        check_threads(threads)
+    elif threads is not None and threads < 1:
+        raise UserError(f"--threads: must be at least 1 per worker, got {threads}")

@@ -9,7 +9,7 @@ import typer
 
 from rich.markup import escape
 
-from .common import MEDICAL_CAUTION, console, error_console, reports_user_errors
+from .common import MEDICAL_CAUTION, check_cluster_options, console, error_console, reports_user_errors
 
 
 
@@ -37,26 +37,11 @@ def dataset(
     """
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
 
-    from ..config import check_threads
-    from ..dataset.cluster import check_scheduler_address
     from ..dataset.plan import load_plan
     from ..dataset.run import build_dataset
-    from ..errors import UserError
     from ..outputs.save import check_output_folder
 
-    if workers is not None and scheduler is not None:
-        raise UserError("--workers and --scheduler: give one or the other")
-    if workers is not None and workers < 1:
-        raise UserError(f"--workers: must be at least 1, got {workers}")
-    if scheduler is not None:
-        check_scheduler_address(scheduler)
-        if threads is not None:
-            raise UserError("--threads: an existing cluster's workers keep their own thread count "
-                            "(set NUMBA_NUM_THREADS where they start)")
-    if workers is None:
-        check_threads(threads)
-    elif threads is not None and threads < 1:
-        raise UserError(f"--threads: must be at least 1 per worker, got {threads}")
+    check_cluster_options(workers, scheduler, threads)
     parsed = load_plan(plan)
     check_output_folder(out)
     columns = [TextColumn("[bold]items"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(), TextColumn("eta"),

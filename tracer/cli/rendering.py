@@ -9,8 +9,8 @@ import typer
 
 from rich.markup import escape
 
-from .common import (FORMER, console, error_console, former_command, former_option, medical_note, reports_user_errors,
-                     threads_option)
+from .common import (FORMER, check_cluster_options, console, error_console, former_command, former_option, medical_note,
+                     reports_user_errors, threads_option)
 
 
 def register(app: typer.Typer) -> None:
@@ -84,18 +84,9 @@ def render(
         raise UserError(f"{checkpoint}: no checkpoint to resume from (render with --checkpoint-every first)")
     distributed = workers is not None or scheduler is not None or chunk_spp is not None
     if distributed:
-        from ..distributed.client import check_scheduler_address
         from ..errors import UserError
 
-        if workers is not None and scheduler is not None:
-            raise UserError("--workers and --scheduler: give one or the other")
-        if workers is not None and workers < 1:
-            raise UserError(f"--workers: must be at least 1, got {workers}")
-        if scheduler is not None:
-            check_scheduler_address(scheduler)
-            if threads is not None:
-                raise UserError("--threads: an existing cluster's workers keep their own thread count "
-                                "(set NUMBA_NUM_THREADS where they start)")
+        check_cluster_options(workers, scheduler, threads)
         if chunk_spp is not None and chunk_spp < 1:
             raise UserError(f"--chunk-spp: must be at least 1, got {chunk_spp}")
         for given, option in ((per_sample, "--per-sample"), (time_limit, "--time-limit")):

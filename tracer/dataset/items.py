@@ -89,21 +89,17 @@ def render_item_inputs(plan_path: str, fingerprint: str, index: int, out_dir: st
     scene, jitter = item_scene(plan, item)
     folder = Path(out_dir) / "items" / item.item_id
     files = {}
-    for spp, (start, stop) in zip(plan.input_spp, plan.input_ranges()):
-        started = time.perf_counter()
-        frame = render(scene, spp=spp, first_sample=start)
-        seconds = time.perf_counter() - started
-        for name, path in _write(frame, folder, f"spp{spp:04d}", plan.formats).items():
-            files[name] = {"path": str(path.relative_to(Path(out_dir))), "spp": spp, "sample_range": [start, stop],
-                           "seconds": round(seconds, 4), "role": "input"}
+    ladders = [(plan.input_ranges(), "", "input")]
     if plan.noisy_pairs:                   # the second of each pair: same spp, samples of its own
-        for spp, (start, stop) in zip(plan.input_spp, plan.pair_ranges()):
+        ladders.append((plan.pair_ranges(), "_pair", "input_pair"))
+    for ranges, suffix, role in ladders:
+        for spp, (start, stop) in zip(plan.input_spp, ranges):
             started = time.perf_counter()
             frame = render(scene, spp=spp, first_sample=start)
             seconds = time.perf_counter() - started
-            for name, path in _write(frame, folder, f"spp{spp:04d}_pair", plan.formats).items():
+            for name, path in _write(frame, folder, f"spp{spp:04d}{suffix}", plan.formats).items():
                 files[name] = {"path": str(path.relative_to(Path(out_dir))), "spp": spp, "sample_range": [start, stop],
-                               "seconds": round(seconds, 4), "role": "input_pair"}
+                               "seconds": round(seconds, 4), "role": role}
     record = {"files": files, "jitter": jitter}
     if with_reference:
         started = time.perf_counter()
