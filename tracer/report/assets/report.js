@@ -71,12 +71,13 @@ function displayByte(linear) {
 }
 
 function bufferKind(key) {
-  if (key === "radiance") return "radiance";
+  if (key === "radiance" || key === "illumination" || key === "background_part") return "radiance";
   if (key === "radiance_variance") return "deviation";
   if (key === "albedo") return "albedo";
   if (key.endsWith("_normal")) return "normal";
   if (key.endsWith("_position")) return "position";
-  if (key.endsWith("_hit") || key === "alpha") return "fraction";
+  if (key.endsWith("_hit") || key === "alpha" || key.endsWith("_interface_weight") || key.endsWith("_light_transmittance")
+      || key === "opacity_before_event1") return "fraction";
   return "scalar";
 }
 
