@@ -17,6 +17,7 @@ def register(app: typer.Typer) -> None:
     app.command("preview")(preview)
     app.command("render")(render)
     app.command("pool")(pool)
+    app.command("sequence")(sequence)
     app.command("merge", hidden=True, context_settings=FORMER)(former_command("merge", "pool"))
 
 
@@ -222,3 +223,46 @@ def _duration(seconds: float) -> str:
     if seconds < 7200:
         return f"{seconds / 60:.1f} min"
     return f"{seconds / 3600:.1f} h"
+
+
+@reports_user_errors
+def sequence(
+    scene: Annotated[Path, typer.Argument(help="Scene TOML file with a [sequence] camera path.")],
+    out: Annotated[Path, typer.Option("--out", help="Folder for frame0000.npz, frame0001.npz, ...")],
+    frames: Annotated[Optional[int], typer.Option(help="Number of frames (default: the path's `frames`).")] = None,
+    spp: Annotated[Optional[int], typer.Option(help="Samples per pixel of every frame.")] = None,
+    seed: Annotated[Optional[int], typer.Option(help="Seed of the sequence.")] = None,
+    width: Annotated[Optional[int], typer.Option(help="Frame width in pixels.")] = None,
+    height: Annotated[Optional[int], typer.Option(help="Frame height in pixels.")] = None,
+    same_noise: Annotated[bool, typer.Option("--same-noise", help="Give every frame the same sample indices "
+                          "(default: each frame its own range, independent noise).")] = False,
+    threads: threads_option = None,
+):
+    """Render a camera path frame by frame, with motion vectors and disocclusion, for temporal denoisers.
+
+    Each frame holds every buffer of a single render plus `motion` and `motion_event2` (H, W, 2:
+    pixel offsets x right, y down, to where the frame's mean event point was on the previous image),
+    `disocclusion` (H, W: the fraction of samples not visible on the previous frame), and its camera
+    matrices in meta.
+    """
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+    from ..config import check_threads
+    from ..io.tomlfile import read_toml
+    from ..outputs.save import check_output_folder
+    from ..scene.parse import parse_scene
+    from ..sequence.path import parse_path
+    from ..sequence.render import render_sequence
+
+    check_threads(threads)
+    data = read_toml(scene)
+    loaded = parse_scene(data, scene).with_overrides(spp=spp, seed=seed, width=width, height=height)
+    path = parse_path(data, scene, loaded.camera, frames)
+    check_output_folder(out)
+    with Progress(TextColumn("[bold]frames"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+                  console=error_console, transient=True) as progress:
+        task = progress.add_task("frames", total=path.frames)
+        written = render_sequence(loaded, path, out, spp=spp, same_noise=same_noise, threads=threads,
+                                  on_frame=lambda done, total: progress.update(task, completed=done))
+    medical_note(loaded)
+    console.print(f"{len(written)} frames of {path.kind} path in {escape(str(out))}")

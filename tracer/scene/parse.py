@@ -60,6 +60,7 @@ def parse_scene(data: dict, path: Path | str, base_dir: Path | None = None) -> S
     lights = tuple(_parse_light(item, path, index) for index, item in enumerate(_list_of_tables(top, "lights")))
     environment, image = _parse_environment(top.table("environment", {}), base)
     settings = _parse_settings(top.table("render", {}), volume)
+    top.used.add("sequence")            # a camera path, read by tracer.sequence.path (README, "Sequences")
     top.finish()
 
     scene = Scene(volume=volume, transfer_function=transfer_function, camera=camera, lights=lights,

@@ -1,0 +1,156 @@
+"""Sequences (README, "Sequences"): camera paths, motion vectors, disocclusion, per-frame noise.
+
+Sources: a camera turning about its own centre moves every image point by the homography K R K^-1 (Hartley and
+Zisserman, Multiple View Geometry, 2004), built here from the cameras' own look-at frames; a moving camera moves
+each pixel's mean event-1 point from its projection in this frame to its projection in the previous one, both
+computed here with the pinhole of ``tests/reference/camera.py``.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from tests.cli.cli_helpers import assert_user_error, invoke
+from tests.reference.camera import Pinhole
+
+ROOT = Path(__file__).resolve().parents[1]
+SIZE = 48
+
+
+def scene_file(tmp_path: Path, sequence: str, spp: int = 4, name: str = "seq.toml") -> Path:
+    text = f"""[volume]
+path = "{ROOT}/sample_volumes/figurine.nrrd"
+[transfer_function]
+path = "{ROOT}/transfer_functions/figurine_clay.toml"
+[camera]
+position = [45.0, -105.0, 55.0]
+target = [0.0, 0.0, 26.0]
+fov_deg = 30.0
+width = {SIZE}
+height = {SIZE + 8}
+[[lights]]
+kind = "directional"
+toward = [-0.6, -1.0, 1.2]
+irradiance = [2.6, 2.5, 2.3]
+[environment]
+kind = "sky"
+[render]
+spp = {spp}
+step_mm = 0.2
+[sequence]
+{sequence}
+"""
+    path = tmp_path / name
+    path.write_text(text)
+    return path
+
+
+def frames(folder: Path, n: int) -> list[dict]:
+    out = []
+    for k in range(n):
+        with np.load(folder / f"frame{k:04d}.npz") as archive:
+            out.append({key: archive[key] for key in archive.files})
+    return out
+
+
+def keys_table(keys) -> str:
+    return 'kind = "keys"\n' + "".join(f"[[sequence.keys]]\nposition = {list(p)}\ntarget = {list(t)}\n" for p, t in keys)
+
+
+def turned(point, about, degrees):
+    a = math.radians(degrees)
+    x, y = point[0] - about[0], point[1] - about[1]
+    return (about[0] + x * math.cos(a) - y * math.sin(a), about[1] + x * math.sin(a) + y * math.cos(a), point[2])
+
+
+def test_a_camera_turning_about_its_centre_moves_pixels_by_the_homography(tmp_path):
+    position, target = (45.0, -105.0, 55.0), (0.0, 0.0, 26.0)
+    path = scene_file(tmp_path, keys_table([(position, target), (position, turned(target, position, 2.0))]))
+    result = invoke("sequence", path, "--out", tmp_path / "out", "--frames", 2)
+    assert result.exit_code == 0, result.output
+    first, second = frames(tmp_path / "out", 2)
+    assert np.all(first["motion"] == 0) and np.all(first["disocclusion"] == 0)
+    cameras = [Pinhole(position, t, fov_deg=30.0, width=SIZE, height=SIZE + 8) for t in (target, turned(target, position, 2.0))]
+
+    def intrinsics(c):
+        focal = (c.height / 2) / c.half_height
+        return np.array([[focal, 0, c.width / 2], [0, focal, c.height / 2], [0, 0, 1.0]])
+
+    def rotation(c):                                  # world -> camera, x right, y down, z forward
+        return np.stack([c.right, -c.up, c.forward])
+    k = intrinsics(cameras[0])
+    homography = k @ rotation(cameras[0]) @ rotation(cameras[1]).T @ np.linalg.inv(k)
+    hit = second["event1_hit"] > 0
+    assert hit.mean() > 0.2
+    rows_cols = cameras[1].project(second["event1_position"][hit].astype(np.float64))
+    now = np.stack([rows_cols[:, 1], rows_cols[:, 0], np.ones(len(rows_cols))], axis=-1)
+    mapped = now @ homography.T
+    expected = mapped[:, :2] / mapped[:, 2:] - now[:, :2]
+    assert np.abs(expected).max() > 1.0                                  # 2 degrees: about 4 pixels here
+    assert np.abs(second["motion"][hit] - expected).max() < 0.01
+
+
+def test_a_moving_camera_reprojects_each_mean_event_point(tmp_path):
+    keys = [((45.0, -105.0, 55.0), (0.0, 0.0, 26.0)), ((49.0, -103.0, 56.0), (1.0, 0.0, 26.5))]
+    path = scene_file(tmp_path, keys_table(keys), spp=8)
+    assert invoke("sequence", path, "--out", tmp_path / "out", "--frames", 2).exit_code == 0
+    _, second = frames(tmp_path / "out", 2)
+    cameras = [Pinhole(p, t, fov_deg=30.0, width=SIZE, height=SIZE + 8) for p, t in keys]
+    visible = (second["event1_hit"] > 0) & (second["disocclusion"] == 0)
+    assert visible.mean() > 0.2
+    points = second["event1_position"][visible].astype(np.float64)
+    before, now = cameras[0].project(points), cameras[1].project(points)
+    expected = (before - now)[:, ::-1]                                   # (row, col) -> (x, y)
+    assert np.abs(expected).max() > 1.0
+    assert np.abs(second["motion"][visible] - expected).max() < 0.01
+    # the matrices in meta follow their stated convention: they put the points where the pinhole does
+    import json
+
+    meta = json.loads(str(second["meta"]))["sequence"]
+    homogeneous = np.concatenate([points, np.ones((len(points), 1))], axis=1)
+    pixels = homogeneous @ np.asarray(meta["world_to_camera"]).T @ np.asarray(meta["projection"]).T
+    np.testing.assert_allclose(pixels[:, :2] / pixels[:, 2:3], now[:, ::-1], atol=1e-6)
+    assert 0 < second["disocclusion"].max() <= 1                          # the silhouette uncovers some background
+
+
+def test_frames_have_independent_noise_unless_asked(tmp_path):
+    still = keys_table([((45.0, -105.0, 55.0), (0.0, 0.0, 26.0))] * 2)
+    path = scene_file(tmp_path, still, spp=2)
+    assert invoke("sequence", path, "--out", tmp_path / "own", "--frames", 2).exit_code == 0
+    assert invoke("sequence", path, "--out", tmp_path / "same", "--frames", 2, "--same-noise").exit_code == 0
+    a, b = frames(tmp_path / "own", 2)
+    c, d = frames(tmp_path / "same", 2)
+    assert np.array_equal(c["radiance"], d["radiance"]) and np.array_equal(a["radiance"], c["radiance"])
+    import tracer
+
+    scene = tracer.load_scene(path)
+    high = tracer.render(scene, spp=128, first_sample=2**41)
+    deviation = np.sqrt(high["radiance_variance"].astype(float).mean(-1) * 128)
+    keep = (high["alpha"] > 0.01) & (deviation > 0)
+    za = ((a["radiance"].mean(-1) - high["radiance"].mean(-1)) / np.where(keep, deviation, 1))[keep]
+    zb = ((b["radiance"].mean(-1) - high["radiance"].mean(-1)) / np.where(keep, deviation, 1))[keep]
+    assert keep.sum() > 600
+    assert abs(np.corrcoef(za, zb)[0, 1]) < 0.1                          # 1/sqrt(n) is about 0.04 here
+    assert np.all(b["motion"] == 0)                                      # a still camera does not move
+
+
+def test_bad_sequences_are_one_line_and_write_nothing(tmp_path, monkeypatch):
+    out = tmp_path / "out"
+    one_key = scene_file(tmp_path, keys_table([((45.0, -105.0, 55.0), (0.0, 0.0, 26.0))]), name="one.toml")
+    assert_user_error(invoke("sequence", one_key, "--out", out), "sequence.keys: a keyed path needs at least 2")
+    flat = scene_file(tmp_path, 'kind = "orbit"\ndegrees = 0.0', name="flat.toml")
+    assert_user_error(invoke("sequence", flat, "--out", out), "sequence.degrees: a zero-length orbit does not move")
+    none = scene_file(tmp_path, "", name="none.toml")
+    none.write_text(none.read_text().replace("[sequence]\n", ""))
+    assert_user_error(invoke("sequence", none, "--out", out), "[sequence]: missing")
+    orbit = scene_file(tmp_path, 'kind = "orbit"\ndegrees = 10.0', name="orbit.toml")
+    assert_user_error(invoke("sequence", orbit, "--out", out, "--frames", 1), "--frames: a sequence needs at least 2")
+    import shutil
+
+    monkeypatch.setattr(shutil, "disk_usage", lambda path: shutil._ntuple_diskusage(10**9, 10**9 - 1000, 1000))
+    assert_user_error(invoke("sequence", orbit, "--out", out, "--frames", 50), "the sequence needs up to")
+    assert not out.exists() or not any(out.iterdir())

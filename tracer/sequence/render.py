@@ -1,0 +1,75 @@
+"""Render a sequence frame by frame: every buffer of a single render, plus ``motion``, ``motion_event2`` and
+``disocclusion``, and each frame's camera matrices in ``meta["sequence"]`` (README, "Sequences").
+
+Noise: frame k takes samples ``[k spp, (k + 1) spp)`` of the sequence's seed, so frames have independent noise;
+``same_noise`` gives every frame samples ``[0, spp)``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import shutil
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+
+from ..errors import UserError
+from .motion import DisocclusionCounter, motion_vectors, projection, world_to_camera
+
+
+def estimate_bytes(scene, frames: int) -> int:
+    """An upper bound on the frames' files: float32 buffers, uncompressed, with the three sequence buffers."""
+    from ..rendering.accumulate import n_channels
+
+    height, width = scene.camera.image_size
+    channels = n_channels(len(scene.settings.feature_levels), bool(scene.settings.features)) + 5
+    return frames * height * width * channels * 4
+
+
+def check_disk(out: Path, needed: int) -> None:
+    probe = Path(out)
+    while not probe.exists() and probe.parent != probe:
+        probe = probe.parent
+    free = shutil.disk_usage(probe).free
+    if needed > free:
+        raise UserError(f"{out}: the sequence needs up to {needed / 2**30:.1f} GiB and {free / 2**30:.1f} GiB are free; "
+                        "render fewer or smaller frames, or choose another --out")
+
+
+def render_sequence(scene, path, out, *, spp: int | None = None, same_noise: bool = False, first_frame: int = 0,
+                    threads: int | None = None, on_frame: Callable[[int, int], None] | None = None) -> list[Path]:
+    """Render the frames of camera ``path`` (a :class:`CameraPath`) of ``scene`` into ``out/frame0000.npz, ...``."""
+    from ..outputs.npz import write_npz
+    from ..rendering import render
+
+    out = Path(out)
+    spp = int(spp or scene.settings.spp)
+    cameras = path.cameras(scene.camera)
+    check_disk(out, estimate_bytes(scene, len(cameras)))
+    spacing = float(np.mean(scene.volume.spacing))
+    written, previous = [], None
+    for k, camera in enumerate(cameras):
+        frame_scene = dataclasses.replace(scene, camera=camera)
+        sink = None
+        if previous is not None:
+            sink = DisocclusionCounter(spp, previous[0], previous[1]["event1_depth"], previous[1]["event1_hit"], spacing)
+        frame = render(frame_scene, spp=spp, first_sample=0 if same_noise else k * spp, threads=threads, per_sample=sink)
+        before = previous[0] if previous is not None else None
+        frame.buffers["motion"] = motion_vectors(frame["event1_position"], frame["event1_hit"], camera, before)
+        frame.buffers["motion_event2"] = motion_vectors(frame["event2_position"], frame["event2_hit"], camera, before)
+        frame.buffers["disocclusion"] = (sink.fraction(frame.spp) if sink is not None
+                                         else np.zeros(frame["alpha"].shape, np.float32))
+        frame.meta["sequence"] = {
+            "frame": k, "frames": len(cameras), "kind": path.kind, "same_noise": same_noise,
+            "world_to_camera": world_to_camera(camera).tolist(), "projection": projection(camera).tolist(),
+            "convention": "camera x right, y down, z forward; [u z, v z, z, 1] = projection @ world_to_camera @ "
+                          "[x, y, z, 1], u, v in pixels from the top-left corner",
+        }
+        frame.meta["render_seconds"] = None                     # files carry no timings: same bytes on any machine
+        frame.meta["compile_seconds"] = None
+        written.append(write_npz(out / f"frame{k:04d}.npz", frame))
+        previous = (camera, frame.buffers)
+        if on_frame is not None:
+            on_frame(k + 1, len(cameras))
+    return written
