@@ -154,3 +154,85 @@ def test_bad_sequences_are_one_line_and_write_nothing(tmp_path, monkeypatch):
     monkeypatch.setattr(shutil, "disk_usage", lambda path: shutil._ntuple_diskusage(10**9, 10**9 - 1000, 1000))
     assert_user_error(invoke("sequence", orbit, "--out", out, "--frames", 50), "the sequence needs up to")
     assert not out.exists() or not any(out.iterdir())
+
+
+ORBIT = 'kind = "orbit"\ndegrees = 8.0'          # 2 degrees per frame over 5 frames
+
+
+@pytest.fixture(scope="module")
+def orbit(tmp_path_factory):
+    """The figurine orbit at 2 degrees per frame: a 256-spp reference sequence, 2-spp inputs, and the spatial and
+    temporal baselines on them."""
+    tmp = tmp_path_factory.mktemp("orbit")
+    text = scene_file(tmp, ORBIT).read_text().replace(f"width = {SIZE}\nheight = {SIZE + 8}", "width = 64\nheight = 64")
+    path = tmp / "orbit.toml"
+    path.write_text(text)
+    for args in (("sequence", path, "--out", tmp / "reference", "--frames", 5, "--spp", 256),
+                 ("sequence", path, "--out", tmp / "input", "--frames", 5, "--spp", 2, "--seed", 9),
+                 ("denoise", tmp / "input", "--out", tmp / "spatial"),
+                 ("denoise", tmp / "input", "--out", tmp / "temporal", "--temporal-alpha", 0.2)):
+        result = invoke(*args)
+        assert result.exit_code == 0, result.output
+    return tmp
+
+
+def display(radiance):
+    """IEC 61966-2-1 on radiance clamped to [0, 1] (exposure 0)."""
+    x = np.clip(np.asarray(radiance, np.float64), 0, 1)
+    return np.where(x <= 0.0031308, 12.92 * x, 1.055 * x ** (1 / 2.4) - 0.055)
+
+
+def bilinear(image, motion):
+    """The previous image at pixel + motion, bilinear, clamped at the borders; and where that lies inside."""
+    height, width = image.shape[:2]
+    y, x = np.mgrid[0:height, 0:width].astype(float)
+    x, y = x + motion[..., 0], y + motion[..., 1]
+    inside = (x >= 0) & (x <= width - 1) & (y >= 0) & (y <= height - 1)
+    x, y = np.clip(x, 0, width - 1), np.clip(y, 0, height - 1)
+    x0, y0 = np.minimum(x.astype(int), width - 2), np.minimum(y.astype(int), height - 2)
+    fx, fy = (x - x0)[..., None], (y - y0)[..., None]
+    return ((1 - fx) * (1 - fy) * image[y0, x0] + fx * (1 - fy) * image[y0, x0 + 1]
+            + (1 - fx) * fy * image[y0 + 1, x0] + fx * fy * image[y0 + 1, x0 + 1]), inside
+
+
+@pytest.mark.slow
+def test_the_previous_converged_frame_warped_by_motion_gives_the_current_one(orbit):
+    previous, current = frames(orbit / "reference", 2)
+    warped, inside = bilinear(previous["radiance"].astype(float), current["motion"].astype(float))
+    valid = (current["disocclusion"] == 0) & inside
+    assert valid.mean() > 0.9 and (current["event1_hit"][valid] > 0).mean() > 0.25
+    mse = np.mean((display(warped) - display(current["radiance"]))[valid] ** 2)
+    assert 10 * math.log10(1 / mse) >= 40.0
+
+
+@pytest.mark.slow
+def test_score_sequence_follows_its_formulas_and_the_temporal_baseline_lowers_temporal_error(orbit, tmp_path):
+    import json
+
+    result = invoke("score-sequence", orbit / "reference", orbit / "spatial", "--json", tmp_path / "spatial.json",
+                    "--csv", tmp_path / "s.csv", "--plot", tmp_path / "s.png", "--gif", tmp_path / "s.gif",
+                    "--inputs", orbit / "input")
+    assert result.exit_code == 0, result.output
+    spatial = json.loads((tmp_path / "spatial.json").read_text())
+    references, candidates = frames(orbit / "reference", 5), frames(orbit / "spatial", 5)
+    for t in range(1, 5):
+        r0, r1 = display(references[t - 1]["radiance"]), display(references[t]["radiance"])
+        c0, c1 = display(candidates[t - 1]["radiance"]), display(candidates[t]["radiance"])
+        valid = references[t]["disocclusion"] == 0
+        temporal = 10 * math.log10(1 / np.mean(((c1 - c0) - (r1 - r0))[valid] ** 2))
+        assert spatial["frames"][t]["temporal_psnr_db"] == pytest.approx(temporal, abs=1e-9)
+        wr, inside = bilinear(r0, references[t]["motion"].astype(float))
+        wc, _ = bilinear(c0, references[t]["motion"].astype(float))
+        keep = valid & inside
+        flicker = 10 * math.log10(1 / np.mean(((c1 - wc) - (r1 - wr))[keep] ** 2))
+        assert spatial["frames"][t]["flicker_psnr_db"] == pytest.approx(flicker, abs=1e-9)
+    assert spatial["frames"][0]["temporal_psnr_db"] is None
+    import imageio.v3 as iio
+
+    gif = iio.imread(tmp_path / "s.gif", index=None)
+    assert gif.shape[0] == 5 and gif.shape[2] == 3 * 64 + 2 * 4                 # input | candidate | reference
+    assert invoke("score-sequence", orbit / "reference", orbit / "temporal", "--json", tmp_path / "t.json").exit_code == 0
+    temporal = json.loads((tmp_path / "t.json").read_text())
+    print(f"spatial {spatial['mean']}, temporal {temporal['mean']}")
+    assert temporal["mean"]["temporal_psnr_db"] > spatial["mean"]["temporal_psnr_db"] + 3.0
+    assert temporal["mean"]["flicker_psnr_db"] > spatial["mean"]["flicker_psnr_db"] + 3.0

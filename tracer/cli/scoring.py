@@ -17,6 +17,7 @@ def register(app: typer.Typer) -> None:
     app.command("score-dataset")(score_dataset)
     app.command("denoise")(denoise)
     app.command("feature-study")(feature_study)
+    app.command("score-sequence")(score_sequence)
 
 
 def aligned_rows(rows) -> list[str]:
@@ -141,8 +142,10 @@ def score_dataset(
 
 @reports_user_errors
 def denoise(
-    input: Annotated[Path, typer.Argument(help="A render NPZ with its feature buffers.")],
-    out: Annotated[Path, typer.Option("--out", help="Output NPZ (a PNG preview is written beside it).")],
+    input: Annotated[Path, typer.Argument(help="A render NPZ with its feature buffers, or a folder of sequence "
+                     "frames (frame0000.npz, ... from tracer sequence).")],
+    out: Annotated[Path, typer.Option("--out", help="Output NPZ (a PNG preview is written beside it), or a folder "
+                   "for a sequence.")],
     color_only: Annotated[bool, typer.Option("--color-only", help="Filter without the feature buffers (radiance and variance only).")] = False,
     iterations: Annotated[int, typer.Option(min=1, max=10, help="a-trous passes (holes 1, 2, 4, ...).")] = 5,
     sigma_luminance: Annotated[float, typer.Option(help="Luminance edge-stopping, in noise standard deviations.")] = 4.0,
@@ -151,12 +154,17 @@ def denoise(
     sigma_depth: Annotated[float, typer.Option(help="Depth edge-stopping, relative to the local depth gradient (0: off).")] = 0.0,
     sigma_position: Annotated[float, typer.Option(help="Position edge-stopping in mm (0: off).")] = 0.0,
     exposure: Annotated[float, typer.Option(help="Exposure in stops for the PNG preview.")] = 0.0,
+    temporal_alpha: Annotated[Optional[float], typer.Option(help="For a sequence: blend the previous output, warped "
+                              "by the motion vectors, where nothing is disoccluded: alpha x this frame + (1 - alpha) x "
+                              "previous (Schied et al. 2017 use 0.2).")] = None,
     threads: threads_option = None,
 ):
     """Filter a render with the classical feature-guided baseline (edge-avoiding a-trous wavelets).
 
     The filter of Dammertz et al. (2010) stops at edges of normals, albedo, depth or positions and is
-    guided by the variance buffer; --color-only filters with radiance and variance alone.
+    guided by the variance buffer; --color-only filters with radiance and variance alone. Given a
+    folder of sequence frames it filters every frame, and with --temporal-alpha it is the temporal
+    baseline: an exponential moving average of the reprojected previous output.
     """
     from ..rendering.buffers import Frame
     from ..scoring.denoise import DenoiseSettings
@@ -168,12 +176,25 @@ def denoise(
     from ..config import check_threads
 
     check_threads(threads)
-    frame = read_npz(input)
-    target = out if out.suffix == ".npz" else out.with_name(out.name + ".npz")
-    check_output_folder(target.parent)
     settings = DenoiseSettings(iterations=iterations, sigma_luminance=sigma_luminance, sigma_normal=sigma_normal,
                                sigma_albedo=sigma_albedo, sigma_depth=sigma_depth, sigma_position_mm=sigma_position,
                                color_only=color_only)
+    if input.is_dir():
+        from ..sequence.temporal import denoise_sequence, frame_paths
+
+        frame_paths(input)
+        check_output_folder(out)
+        written = denoise_sequence(input, out, alpha=temporal_alpha, settings=settings, threads=threads)
+        kind = "spatial" if temporal_alpha is None else f"spatial, then temporal (alpha {temporal_alpha:g})"
+        console.print(f"filtered {len(written)} frames ({kind}) into {escape(str(out))}")
+        return
+    if temporal_alpha is not None:
+        from ..errors import UserError
+
+        raise UserError("--temporal-alpha: needs a folder of sequence frames, not one render")
+    frame = read_npz(input)
+    target = out if out.suffix == ".npz" else out.with_name(out.name + ".npz")
+    check_output_folder(target.parent)
     result = run(frame, settings, threads=threads)
     buffers = dict(frame.buffers)
     buffers["radiance"] = result.radiance
@@ -225,3 +246,78 @@ def feature_study(
     console.print(escape(study_text(result)), highlight=False)
     for path in write_study(result, out):
         console.print(f"wrote {escape(str(path))}")
+
+
+@reports_user_errors
+def score_sequence(
+    reference: Annotated[Path, typer.Argument(help="Folder of reference frames from tracer sequence (with motion).")],
+    candidate: Annotated[Path, typer.Argument(help="Folder of candidate frames of the same names (key 'radiance').")],
+    exposure: Annotated[float, typer.Option(help="Exposure in stops before the sRGB curve.")] = 0.0,
+    json_out: Annotated[Optional[Path], typer.Option("--json", help="Write the per-frame figures here (JSON).")] = None,
+    csv: Annotated[Optional[Path], typer.Option(help="Write the per-frame figures here (CSV).")] = None,
+    plot: Annotated[Optional[Path], typer.Option(help="Plot PSNR, temporal PSNR and flicker over the frames (PNG).")] = None,
+    gif: Annotated[Optional[Path], typer.Option(help="An animated GIF: --inputs (if given), the candidate and the "
+                   "reference side by side.")] = None,
+    inputs: Annotated[Optional[Path], typer.Option(help="Folder of the noisy input frames, for --gif.")] = None,
+):
+    """Score a sequence: per-frame PSNR/SSIM, temporal PSNR of frame differences, and reprojected flicker.
+
+    Temporal PSNR compares candidate[t] - candidate[t-1] with reference[t] - reference[t-1] over
+    pixels the reference marks as not disoccluded; the flicker figure does the same after warping the
+    previous frames by the reference's motion vectors.
+    """
+    import json
+
+    from ..io.atomic import atomic_path
+    from ..sequence.temporal import score_sequence as run
+    from ..sequence.temporal import write_preview_gif
+
+    result = run(reference, candidate, exposure=exposure)
+
+    def fmt(value, pattern="{:.2f}"):
+        return "n/a" if value is None else pattern.format(value)
+    console.print(f"{len(result['frames'])} frames: PSNR {fmt(result['mean']['psnr_db'])} dB, SSIM "
+                  f"{fmt(result['mean']['ssim'], '{:.4f}')}, temporal PSNR {fmt(result['mean']['temporal_psnr_db'])} dB, "
+                  f"reprojected flicker PSNR {fmt(result['mean']['flicker_psnr_db'])} dB (means over frames)")
+    if json_out is not None:
+        with atomic_path(json_out) as temporary:
+            temporary.write_text(json.dumps(result, indent=1))
+        console.print(f"wrote {escape(str(json_out))}")
+    if csv is not None:
+        lines = ["frame,psnr_db,ssim,temporal_psnr_db,flicker_psnr_db"]
+        lines += [f"{f['frame']},{f['psnr_db']:.4f},{f['ssim']:.5f},{fmt(f['temporal_psnr_db'], '{:.4f}')},"
+                  f"{fmt(f['flicker_psnr_db'], '{:.4f}')}" for f in result["frames"]]
+        with atomic_path(csv) as temporary:
+            temporary.write_text("\n".join(lines) + "\n")
+        console.print(f"wrote {escape(str(csv))}")
+    if plot is not None:
+        _plot_sequence(result, plot)
+        console.print(f"wrote {escape(str(plot))}")
+    if gif is not None:
+        columns = ([("input", inputs)] if inputs is not None else []) + [("candidate", candidate), ("reference", reference)]
+        write_preview_gif(gif, columns, exposure=exposure)
+        console.print(f"wrote {escape(str(gif))} ({', '.join(label for label, _ in columns)}, left to right)")
+
+
+def _plot_sequence(result: dict, path: Path) -> None:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from ..io.atomic import atomic_path
+
+    frames = [f["frame"] for f in result["frames"]]
+    figure, axis = plt.subplots(figsize=(7, 3.6))
+    for key, label, colour in (("psnr_db", "PSNR", "#c9822f"), ("temporal_psnr_db", "temporal PSNR", "#2f7f8a"),
+                               ("flicker_psnr_db", "reprojected flicker PSNR", "#8a5a9e")):
+        values = [f[key] for f in result["frames"]]
+        axis.plot([x for x, v in zip(frames, values) if v is not None], [v for v in values if v is not None],
+                  marker="o", label=label, color=colour)
+    axis.set_xlabel("frame")
+    axis.set_ylabel("dB")
+    axis.legend()
+    figure.tight_layout()
+    with atomic_path(path) as temporary:
+        figure.savefig(temporary, dpi=100, format="png")
+    plt.close(figure)
