@@ -236,3 +236,34 @@ def test_score_sequence_follows_its_formulas_and_the_temporal_baseline_lowers_te
     print(f"spatial {spatial['mean']}, temporal {temporal['mean']}")
     assert temporal["mean"]["temporal_psnr_db"] > spatial["mean"]["temporal_psnr_db"] + 3.0
     assert temporal["mean"]["flicker_psnr_db"] > spatial["mean"]["flicker_psnr_db"] + 3.0
+
+
+@pytest.mark.slow
+def test_kill_9_during_a_sequence_then_resume_loses_nothing(tmp_path):
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    path = scene_file(tmp_path, 'kind = "orbit"\ndegrees = 10.0', spp=16)
+    command = [sys.executable, "-m", "tracer", "sequence", str(path), "--frames", "6"]
+    out = tmp_path / "killed"
+    process = subprocess.Popen(command + ["--out", str(out)], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                               start_new_session=True)
+    deadline = time.time() + 120
+    while time.time() < deadline and process.poll() is None and not (out / "frame0002.npz").exists():
+        time.sleep(0.02)
+    assert process.poll() is None, "the sequence finished before it could be killed"
+    os.killpg(process.pid, signal.SIGKILL)
+    process.wait()
+    assert not (out / "frame0005.npz").exists()
+    assert_user_error(invoke("sequence", path, "--frames", 6, "--out", out), "already holds", "--resume")
+    resumed = subprocess.run(command + ["--out", str(out), "--resume"], capture_output=True, text=True)
+    assert resumed.returncode == 0, resumed.stderr
+    assert invoke("sequence", path, "--frames", 6, "--out", tmp_path / "whole", "--threads", 1).exit_code == 0
+    for a, b in zip(frames(out, 6), frames(tmp_path / "whole", 6)):
+        for key in a:
+            if key != "meta":
+                assert np.array_equal(a[key], b[key]), key          # and 2 threads against 1: the same bits
+    assert not list(out.glob(".frame*"))

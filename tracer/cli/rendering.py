@@ -236,6 +236,8 @@ def sequence(
     height: Annotated[Optional[int], typer.Option(help="Frame height in pixels.")] = None,
     same_noise: Annotated[bool, typer.Option("--same-noise", help="Give every frame the same sample indices "
                           "(default: each frame its own range, independent noise).")] = False,
+    resume: Annotated[bool, typer.Option("--resume", help="Keep the frames a killed run finished and render the rest "
+                      "(the same bits as an uninterrupted run).")] = False,
     threads: threads_option = None,
 ):
     """Render a camera path frame by frame, with motion vectors and disocclusion, for temporal denoisers.
@@ -262,7 +264,7 @@ def sequence(
     with Progress(TextColumn("[bold]frames"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
                   console=error_console, transient=True) as progress:
         task = progress.add_task("frames", total=path.frames)
-        written = render_sequence(loaded, path, out, spp=spp, same_noise=same_noise, threads=threads,
+        written = render_sequence(loaded, path, out, spp=spp, same_noise=same_noise, resume=resume, threads=threads,
                                   on_frame=lambda done, total: progress.update(task, completed=done))
     medical_note(loaded)
     console.print(f"{len(written)} frames of {path.kind} path in {escape(str(out))}")

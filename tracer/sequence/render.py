@@ -37,20 +37,57 @@ def check_disk(out: Path, needed: int) -> None:
                         "render fewer or smaller frames, or choose another --out")
 
 
-def render_sequence(scene, path, out, *, spp: int | None = None, same_noise: bool = False, first_frame: int = 0,
+def _finished_frame(path: Path, k: int, scene_dict: dict, spp: int, same_noise: bool):
+    """The buffers of a frame written by an earlier run of the same sequence, or None if it is not that."""
+    from ..outputs.npz import read_npz
+
+    try:
+        frame = read_npz(path)
+    except UserError:
+        return None
+    sequence = frame.meta.get("sequence", {})
+    if (sequence.get("frame") != k or frame.meta.get("scene") != scene_dict or frame.spp != spp
+            or sequence.get("same_noise") != same_noise):
+        return None
+    return frame
+
+
+def render_sequence(scene, path, out, *, spp: int | None = None, same_noise: bool = False, resume: bool = False,
                     threads: int | None = None, on_frame: Callable[[int, int], None] | None = None) -> list[Path]:
-    """Render the frames of camera ``path`` (a :class:`CameraPath`) of ``scene`` into ``out/frame0000.npz, ...``."""
+    """Render the frames of camera ``path`` (a :class:`CameraPath`) of ``scene`` into ``out/frame0000.npz, ...``.
+
+    With ``resume``, frames an earlier run of the same sequence finished are kept (and the last of them read
+    back as the previous frame), so a killed run continues to the same bits; without it, a folder that already
+    holds frames is refused.
+    """
+    import json
+
     from ..outputs.npz import write_npz
     from ..rendering import render
 
     out = Path(out)
     spp = int(spp or scene.settings.spp)
     cameras = path.cameras(scene.camera)
-    check_disk(out, estimate_bytes(scene, len(cameras)))
+    existing = sorted(out.glob("frame[0-9][0-9][0-9][0-9].npz")) if out.is_dir() else []
+    if existing and not resume:
+        raise UserError(f"{out}: already holds {len(existing)} frames; use --resume to continue, or choose another --out")
+    if resume:
+        for partial in out.glob(".frame*.partial-*") if out.is_dir() else []:
+            partial.unlink()
+    check_disk(out, estimate_bytes(scene, len(cameras) - len(existing)))
     spacing = float(np.mean(scene.volume.spacing))
     written, previous = [], None
     for k, camera in enumerate(cameras):
         frame_scene = dataclasses.replace(scene, camera=camera)
+        target = out / f"frame{k:04d}.npz"
+        if resume and target.is_file():
+            kept = _finished_frame(target, k, json.loads(json.dumps(frame_scene.to_dict())), spp, same_noise)
+            if kept is not None:
+                written.append(target)
+                previous = (camera, kept.buffers)
+                if on_frame is not None:
+                    on_frame(k + 1, len(cameras))
+                continue
         sink = None
         if previous is not None:
             sink = DisocclusionCounter(spp, previous[0], previous[1]["event1_depth"], previous[1]["event1_hit"], spacing)
@@ -68,7 +105,7 @@ def render_sequence(scene, path, out, *, spp: int | None = None, same_noise: boo
         }
         frame.meta["render_seconds"] = None                     # files carry no timings: same bytes on any machine
         frame.meta["compile_seconds"] = None
-        written.append(write_npz(out / f"frame{k:04d}.npz", frame))
+        written.append(write_npz(target, frame))
         previous = (camera, frame.buffers)
         if on_frame is not None:
             on_frame(k + 1, len(cameras))
