@@ -54,3 +54,10 @@ def alpha_exactness() -> float:
 # "`(radiance - background_part) / (albedo + 0.001)`"
 def illumination_epsilon() -> float:
     return number(r"`\(radiance - background_part\) / \(albedo \+ ([0-9.e-]+)\)`")
+
+
+# "differs from that pixel's event-1 depth by more than 5% of it plus 2 mean voxel spacings"
+def disocclusion_tolerance() -> tuple[float, float]:
+    fraction = number(r"differs from that pixel's event-1 depth by more than ([0-9.]+)% of it plus [0-9.]+ mean voxel")
+    spacings = number(r"differs from that pixel's event-1 depth by more than [0-9.]+% of it plus ([0-9.]+) mean voxel")
+    return fraction / 100.0, spacings
