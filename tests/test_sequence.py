@@ -357,3 +357,58 @@ scattering = "interface"
     assert np.all(disocclusion[clear] <= 0.5), disocclusion[clear].max()
     assert (disocclusion[clear] == 0).mean() > 0.95                              # silhouettes aside, exactly 0
     assert (disocclusion[near & (band == 0)] > 0.5).sum() <= 2 * 48                # at most one pixel either side
+
+
+def test_a_changing_volume_renders_each_time_step_with_its_own_samples(tmp_path):
+    from tests.reference.files import write_volume
+
+    rng = np.random.default_rng(5)
+    steps = []
+    for k in range(3):
+        field = np.clip(rng.normal(0.3 + 0.1 * k, 0.2, (24, 24, 24)), 0, 1).astype(np.float32)
+        steps.append(write_volume(tmp_path / f"step{k}.nrrd", field, np.eye(3) * 0.5, (-6.0, -6.0, -6.0)))
+    odd = write_volume(tmp_path / "odd.nrrd", np.zeros((24, 24, 20), np.float32), np.eye(3) * 0.5, (-6.0, -6.0, -6.0))
+    volumes = ", ".join(f'"{p}"' for p in steps)
+
+    def scene(volume_list, name):
+        text = f"""[volume]
+path = "{steps[0]}"
+[transfer_function]
+path = "{ROOT}/transfer_functions/plume_smoke.toml"
+[camera]
+position = [0.0, -40.0, 10.0]
+target = [0.0, 0.0, 0.0]
+width = 24
+height = 20
+[[lights]]
+kind = "directional"
+toward = [0.3, -0.5, 1.0]
+irradiance = [2.0, 2.0, 2.0]
+[render]
+spp = 3
+[sequence]
+kind = "still"
+stride = 2
+volumes = [{volume_list}]
+"""
+        path = tmp_path / name
+        path.write_text(text)
+        return path
+
+    path = scene(volumes, "changing.toml")
+    assert invoke("sequence", path, "--out", tmp_path / "out", "--frames", 5).exit_code == 0
+    import dataclasses
+
+    import tracer
+
+    base = tracer.load_scene(path)
+    for k, frame in enumerate(frames(tmp_path / "out", 5)):
+        step = tracer.load_volume(steps[min(k // 2, 2)])              # stride 2: steps 0, 0, 1, 1, 2
+        alone = tracer.render(dataclasses.replace(base, volume=step), spp=3, first_sample=3 * k)
+        assert np.array_equal(frame["radiance"], alone["radiance"]), k
+        assert np.all(frame["motion"] == 0)
+    bad = scene(f'"{steps[0]}", "{odd}"', "mismatched.toml")
+    out = tmp_path / "bad"
+    assert_user_error(invoke("sequence", bad, "--out", out, "--frames", 4), "odd.nrrd", "[sequence] volumes",
+                      "every time step must share one grid")
+    assert not out.exists() or not any(out.iterdir())

@@ -133,11 +133,17 @@ def tf_check(
 @reports_user_errors
 def demo_volumes(
     out: Annotated[Path, typer.Option("--out", help="Folder to write the demo volumes into.")] = Path("sample_volumes"),
+    drifting: Annotated[bool, typer.Option("--drifting", help="Instead, write the drifting plume's 12 time steps "
+                        "to OUT/plume_drift/ (for examples/plume_drift.toml).")] = False,
 ):
     """Regenerate the demo volumes (figurine, lattice, plume, flame) bit-identically as gzip NRRD files."""
-    from ..volumes.demo import write_demo_volumes
+    from ..volumes.demo import write_demo_volumes, write_drifting_plume
 
-    write_demo_volumes(out, progress=lambda name, path: console.print(f"  wrote {escape(str(path))}"))
+    report = lambda name, path: console.print(f"  wrote {escape(str(path))}")     # noqa: E731
+    if drifting:
+        write_drifting_plume(out / "plume_drift", progress=report)
+    else:
+        write_demo_volumes(out, progress=report)
 
 
 @reports_user_errors

@@ -18,7 +18,7 @@ import numpy as np
 from ..errors import UserError
 from ..scene.camera import Camera
 
-KINDS = ("orbit", "keys")
+KINDS = ("orbit", "keys", "still")
 
 
 @dataclasses.dataclass(frozen=True)
@@ -30,12 +30,22 @@ class CameraPath:
     degrees: float = 0.0
     keys: tuple = ()                      # ((position, target, fov_deg), ...)
     even_speed: bool = False
+    volumes: tuple = ()                   # time steps: one volume file per frame (or per `stride` frames)
+    stride: int = 1
 
     def cameras(self, base: Camera) -> list[Camera]:
         """The camera of every frame, from the scene's camera ``base``."""
         if self.kind == "orbit":
             return [_orbit(base, self, k) for k in range(self.frames)]
+        if self.kind == "still":
+            return [base] * self.frames
         return _keyed(base, self)
+
+    def volume_of(self, k: int):
+        """The volume file of frame k (None: the scene's own volume)."""
+        if not self.volumes:
+            return None
+        return self.volumes[min(k // self.stride, len(self.volumes) - 1)]
 
 
 def parse_path(data: dict, path, base: Camera, frames: int | None) -> CameraPath:
@@ -53,6 +63,10 @@ def parse_path(data: dict, path, base: Camera, frames: int | None) -> CameraPath
         count = frames
     if base.crop is not None:
         raise table.error("kind", "a sequence renders whole frames; remove the camera's crop")
+    volumes, stride = _parse_volumes(table, path)
+    if kind == "still":
+        table.finish()
+        return CameraPath("still", count, volumes=volumes, stride=stride)
     if kind == "orbit":
         axis = table.vector("axis", (0.0, 0.0, 1.0))
         if np.linalg.norm(axis) == 0:
@@ -63,7 +77,7 @@ def parse_path(data: dict, path, base: Camera, frames: int | None) -> CameraPath
             raise table.error("degrees", f"a zero-length orbit does not move; give a non-zero angle, got {degrees}")
         table.finish()
         return CameraPath("orbit", count, tuple(float(a) for a in axis), None if center is None else tuple(center),
-                          float(degrees))
+                          float(degrees), volumes=volumes, stride=stride)
     keys = table.raw("keys", [])
     if not isinstance(keys, list) or len(keys) < 2:
         raise table.error("keys", f"a keyed path needs at least 2 [[sequence.keys]], got "
@@ -80,7 +94,19 @@ def parse_path(data: dict, path, base: Camera, frames: int | None) -> CameraPath
         parsed.append((tuple(position), tuple(target), float(fov)))
     even = table.boolean("even_speed", False)
     table.finish()
-    return CameraPath("keys", count, keys=tuple(parsed), even_speed=even)
+    return CameraPath("keys", count, keys=tuple(parsed), even_speed=even, volumes=volumes, stride=stride)
+
+
+def _parse_volumes(table, path) -> tuple[tuple, int]:
+    """``volumes``: files (relative to the scene file) of the volume's time steps, and ``stride``, frames per step."""
+    from pathlib import Path
+
+    names = table.raw("volumes", [])
+    if not isinstance(names, list) or not all(isinstance(n, str) for n in names):
+        raise table.error("volumes", f"expected a list of volume files, got {names!r}")
+    stride = table.integer("stride", 1, low=1, high=100000)
+    base = Path(path).parent
+    return tuple(str(p if Path(p).is_absolute() else base / p) for p in names), stride
 
 
 def _rotation(axis, angle: float) -> np.ndarray:

@@ -52,6 +52,42 @@ def _finished_frame(path: Path, k: int, scene_dict: dict, spp: int, same_noise: 
     return frame
 
 
+def _time_steps(scene, path):
+    """frame -> volume: the scene's own, or the path's time steps, each loaded once and checked against the first
+    for shape, spacing and origin (a sequence of a changing field on one grid)."""
+    import functools
+
+    from ..volumes import load_volume
+
+    if not path.volumes:
+        return lambda k: scene.volume
+    first = None
+
+    @functools.lru_cache(maxsize=2)
+    def load(name: str):
+        nonlocal first
+        try:
+            volume = load_volume(name)
+        except UserError as error:
+            raise UserError(f"[sequence] volumes: {error}") from None
+        if first is None:
+            first = (name, volume)
+        elif volume.shape != first[1].shape or not np.allclose(volume.index_to_world_matrix,
+                                                               first[1].index_to_world_matrix):
+            raise UserError(f"{name}: [sequence] volumes: its grid (shape {volume.shape}, spacing "
+                            f"{', '.join(f'{v:g}' for v in volume.spacing)} mm) differs from {first[0]}'s (shape "
+                            f"{first[1].shape}, spacing {', '.join(f'{v:g}' for v in first[1].spacing)} mm); "
+                            "every time step must share one grid")
+        return volume
+
+    for name in path.volumes:                      # every check before the first frame
+        load(name)
+    load.cache_clear()
+    first_name = path.volumes[0]
+    load(first_name)
+    return lambda k: load(path.volume_of(k))
+
+
 def render_sequence(scene, path, out, *, spp: int | None = None, same_noise: bool = False, resume: bool = False,
                     threads: int | None = None, on_frame: Callable[[int, int], None] | None = None) -> list[Path]:
     """Render the frames of camera ``path`` (a :class:`CameraPath`) of ``scene`` into ``out/frame0000.npz, ...``.
@@ -75,10 +111,11 @@ def render_sequence(scene, path, out, *, spp: int | None = None, same_noise: boo
         for partial in out.glob(".frame*.partial-*") if out.is_dir() else []:
             partial.unlink()
     check_disk(out, estimate_bytes(scene, len(cameras) - len(existing)))
+    steps = _time_steps(scene, path)
     spacing = float(np.mean(scene.volume.spacing))
     written, previous = [], None
     for k, camera in enumerate(cameras):
-        frame_scene = dataclasses.replace(scene, camera=camera)
+        frame_scene = dataclasses.replace(scene, camera=camera, volume=steps(k))
         target = out / f"frame{k:04d}.npz"
         if resume and target.is_file():
             kept = _finished_frame(target, k, json.loads(json.dumps(frame_scene.to_dict())), spp, same_noise)

@@ -176,6 +176,51 @@ def plume(seed: int = 37) -> Sample:
     return Sample("plume", density.astype(np.float32), spacing, "combustion-simulation smoke plume (float32 density)")
 
 
+#: Time steps of the drifting plume (README, "Sequences").
+DRIFT_STEPS = 12
+
+
+def plume_drift(step: int, steps: int = DRIFT_STEPS, seed: int = 37) -> Sample:
+    """Time step ``step`` of a smaller smoke plume drifting sideways and rising: 64 x 64 x 88 cells of 0.5 mm.
+
+    Over the steps the column leans 6 mm along +x and its turbulence rises 8 mm, so consecutive steps
+    differ the way a simulation's frames do (float32 density, quantised like the plume)."""
+    shape, spacing = (64, 64, 88), (0.5, 0.5, 0.5)
+    t = step / max(steps - 1, 1)
+    x, y, z = _grid(shape, spacing)
+    height = z / z.max()
+    wobble_x = 2.0 * np.sin(6.0 * height + 0.5 + 1.5 * t) + 6.0 * t * height
+    wobble_y = 1.5 * np.sin(4.3 * height + 2.0)
+    radius = 2.5 + 9.0 * height**0.8
+    rho = np.sqrt((x - wobble_x) ** 2 + (y - wobble_y) ** 2)
+    envelope = np.exp(-((rho / radius) ** 2)) * np.clip(z / 4.0, 0, 1) * np.clip((z.max() - z) / 8.0, 0, 1)
+    turbulence = np.zeros(np.broadcast_shapes(x.shape, y.shape, z.shape))
+    for octave, (cell, weight) in enumerate(((6.0, 0.5), (3.0, 0.3), (1.5, 0.2))):
+        turbulence = turbulence + weight * _value_noise(x, y, z - 8.0 * t - 3.0 * octave, cell, seed + octave)
+    density = np.clip(envelope * (0.35 + 1.3 * turbulence) - 0.18, 0.0, None) * (1.0 - 0.5 * height)
+    density = np.round(density * 4096.0) / 4096.0
+    return Sample(f"plume_drift_{step:02d}", density.astype(np.float32), spacing,
+                  f"drifting smoke plume, time step {step} of {steps} (float32 density)")
+
+
+def write_drifting_plume(out_dir, steps: int = DRIFT_STEPS, progress=None) -> list[Path]:
+    """The drifting plume's time steps as ``out_dir/step00.nrrd, ...`` (gzip NRRD, one origin for all)."""
+    from .nrrd import write_nrrd
+
+    out_dir = Path(out_dir)
+    paths = []
+    for step in range(steps):
+        sample = plume_drift(step, steps)
+        shape = np.array(sample.data.shape)
+        origin = np.array([-(shape[0] - 1) * sample.spacing_mm[0] / 2, -(shape[1] - 1) * sample.spacing_mm[1] / 2, 0.0])
+        path = out_dir / f"step{step:02d}.nrrd"
+        write_nrrd(path, sample.data, origin, np.diag(sample.spacing_mm))
+        paths.append(path)
+        if progress is not None:
+            progress(sample.name, path)
+    return paths
+
+
 AMBIENT_K = 300.0
 FLAME_PEAK_K = 1950.0     # a hydrocarbon flame's core; about 1900-2000 K is the usual figure (from memory)
 
