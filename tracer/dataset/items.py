@@ -88,6 +88,8 @@ def render_item_inputs(plan_path: str, fingerprint: str, index: int, out_dir: st
     item = plan.items()[index]
     scene, jitter = item_scene(plan, item)
     folder = Path(out_dir) / "items" / item.item_id
+    if plan.sequence is not None:
+        return _render_sequence_item(plan, scene, jitter, folder, Path(out_dir))
     files = {}
     ladders = [(plan.input_ranges(), "", "input")]
     if plan.noisy_pairs:                   # the second of each pair: same spp, samples of its own
@@ -109,6 +111,43 @@ def render_item_inputs(plan_path: str, fingerprint: str, index: int, out_dir: st
         seconds = time.perf_counter() - started
         record["reference"] = _reference_record(plan, frame, seconds, folder, out_dir, files)
     return record
+
+
+def _render_sequence_item(plan, scene, jitter, folder: Path, out_dir: Path) -> dict:
+    """A sequence item: per frame of the plan's camera path, the input ladder and a reference, each with motion
+    vectors and disocclusion against the same file of the previous frame. Frame f's reference takes samples
+    [f R, (f + 1) R), its inputs the ladder's ranges shifted by f x sum(ladder): all disjoint."""
+    from ..rendering.noise import residual_noise
+    from ..sequence.render import render_frame
+
+    cameras = plan.sequence.cameras(scene.camera)
+    spacing = float(np.mean(scene.volume.spacing))
+    files, previous = {}, {}
+    shift = sum(plan.input_spp)
+    errors, psnrs, reference_seconds = [], [], 0.0
+    for f, camera in enumerate(cameras):
+        frame_scene = dataclasses.replace(scene, camera=camera)
+        about = {"frame": f, "frames": len(cameras), "kind": plan.sequence.kind, "same_noise": False}
+        jobs = [(spp, start + f * shift, "input", f"spp{spp:04d}") for spp, (start, _) in zip(plan.input_spp, plan.input_ranges())]
+        jobs.append((plan.reference_spp, f * plan.reference_spp, "reference", "reference"))
+        for spp, start, role, name in jobs:
+            started = time.perf_counter()
+            frame = render_frame(frame_scene, spp, start, previous.get(name), spacing, about)
+            seconds = time.perf_counter() - started
+            previous[name] = (camera, frame.buffers)
+            if role == "reference":
+                noise = residual_noise(frame.buffers)
+                errors.append(noise.mean_relative_error)
+                psnrs.append(noise.psnr_db)
+                reference_seconds += seconds
+            for key, path in _write(frame, folder, f"frame{f:04d}/{name}", plan.formats).items():
+                files[key] = {"path": str(path.relative_to(out_dir)), "spp": spp, "sample_range": [start, start + spp],
+                              "seconds": round(seconds, 4), "role": role, "frame": f}
+    finite = [p for p in psnrs if math.isfinite(p)]
+    reference = {"spp": plan.reference_spp, "mean_relative_error": round(max(errors), 6),
+                 "psnr_vs_converged_db": round(min(finite), 3) if finite else None, "certified": True,
+                 "seconds": round(reference_seconds, 4), "worst_of_frames": len(cameras)}
+    return {"files": files, "jitter": jitter, "reference": reference, "frames": len(cameras)}
 
 
 def _reference_record(plan, frame, seconds, folder, out_dir, files) -> dict:
@@ -199,4 +238,5 @@ def finish_record(plan: DatasetPlan, item: ItemSpec, partial: dict, out_dir: Pat
         "camera": scene.to_dict()["camera"], "lights": [light.to_dict() for light in scene.lights],
         "environment": scene.environment.to_dict(), "input_spp": list(plan.input_spp),
         "reference": partial["reference"], "files": files,
+        **({"frames": partial["frames"], "path": plan.sequence.kind} if "frames" in partial else {}),
     }

@@ -56,3 +56,11 @@ def record_is_intact(folder, record: dict) -> bool:
         if not path.is_file() or sha256_file(path) != entry["sha256"]:
             return False
     return True
+
+
+def refuse_sequences(folder, records: list[dict], command: str) -> None:
+    """A sequence dataset's items hold frames; the single-view commands refuse them in one line."""
+    frames = next((record["frames"] for record in records if "frames" in record), None)
+    if frames is not None:
+        raise UserError(f"{folder}: a sequence dataset ({frames} frames per item); {command} takes single views "
+                        "(score a sequence's frames with tracer score-sequence)")

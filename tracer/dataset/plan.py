@@ -96,6 +96,7 @@ class DatasetPlan:
     raw: dict = dataclasses.field(default_factory=dict, repr=False)
     noisy_pairs: bool = False          # a second render of every input spp over its own samples
     reference_halves: bool = False     # the reference also written as two halves of its samples
+    sequence: object = None            # a CameraPath template: every item a sequence of frames (README, "Datasets")
 
     @cached_property
     def medical(self) -> bool:
@@ -412,6 +413,7 @@ def parse_plan(data: dict, path: Path) -> DatasetPlan:
     total = sum(f for _, f in splits)
     if abs(total - 1.0) > 1e-6:
         raise UserError(f"{path}: splits: fractions must add up to 1, got {total:g}")
+    sequence = _parse_sequence(top, path, chunks, noisy_pairs, halves, target_error, min_psnr)
     top.finish()
 
     return DatasetPlan(
@@ -423,8 +425,39 @@ def parse_plan(data: dict, path: Path) -> DatasetPlan:
         reference_spp=reference_spp, reference_target_error=target_error, reference_min_psnr=min_psnr,
         reference_chunks=chunks, settings=settings, splits=tuple(splits), split_by=split_by,
         raw=json.loads(json.dumps(data, default=str)) | {"__base__": str(base.resolve())},
-        noisy_pairs=noisy_pairs, reference_halves=halves,
+        noisy_pairs=noisy_pairs, reference_halves=halves, sequence=sequence,
     )
+
+
+def _parse_sequence(top, path, chunks, noisy_pairs, halves, target_error, min_psnr):
+    """``[sequence]``: every item a camera path of ``frames`` frames, ``kind = "orbit"`` (``degrees_per_frame``
+    about the view's target, ``axis``) or ``"pan"`` (``mm_per_frame`` along the camera's right)."""
+    from ..io.tomlfile import Table
+    from ..sequence.path import CameraPath
+
+    if "sequence" not in top.data:
+        return None
+    table = top.table("sequence")
+    if not isinstance(table, Table):
+        raise top.error("sequence", "expected a [sequence] table")
+    kind = table.string("kind", choices=("orbit", "pan"))
+    frames = table.integer("frames", 8, low=2, high=1000)
+    for given, key in ((chunks > 1, "reference_chunks"), (noisy_pairs, "noisy_pairs"), (halves, "reference_halves"),
+                       (target_error is not None, "reference_target_error"), (min_psnr is not None, "reference_min_psnr")):
+        if given:
+            raise table.error("kind", f"sequence items take a fixed reference_spp and no {key}")
+    if kind == "orbit":
+        step = table.number("degrees_per_frame", 2.0)
+        axis = table.vector("axis", (0.0, 0.0, 1.0))
+        if step == 0 or np.linalg.norm(axis) == 0:
+            raise table.error("degrees_per_frame", "a zero-length orbit does not move; give a non-zero angle and axis")
+        table.finish()
+        return CameraPath("orbit", frames, tuple(axis), None, step * (frames - 1))
+    step = table.number("mm_per_frame")
+    if step == 0:
+        raise table.error("mm_per_frame", "a zero-length pan does not move; give a non-zero distance")
+    table.finish()
+    return CameraPath("pan", frames, mm_per_frame=step)
 
 
 def _resolve(base: Path, value: str) -> Path:

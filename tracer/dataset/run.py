@@ -122,7 +122,8 @@ def summarize(plan, records, done_before, seconds) -> DatasetSummary:
     for record in records:
         per_split[record["split"]] = per_split.get(record["split"], 0) + 1
         pixels = plan.height * plan.width if plan.crop is None else plan.crop[0] * plan.crop[1]
-        total_samples += pixels * (sum(plan.input_spp) * (2 if plan.noisy_pairs else 1) + record["reference"]["spp"])
+        total_samples += pixels * (sum(plan.input_spp) * (2 if plan.noisy_pairs else 1)
+                                   + record["reference"]["spp"]) * record.get("frames", 1)
         worst_error = max(worst_error, record["reference"]["mean_relative_error"])
         psnr = record["reference"]["psnr_vs_converged_db"]
         if psnr is not None:

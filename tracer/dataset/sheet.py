@@ -9,7 +9,7 @@ import numpy as np
 from ..errors import UserError
 from ..outputs.npz import read_npz
 from ..outputs.sheet import draw_buffer
-from .manifest import read_manifest
+from .manifest import read_manifest, refuse_sequences
 
 
 def write_dataset_sheet(folder, path, n_items: int = 4, exposure: float = 0.0) -> Path:
@@ -24,6 +24,7 @@ def write_dataset_sheet(folder, path, n_items: int = 4, exposure: float = 0.0) -
     records = read_manifest(folder)
     if not records:
         raise UserError(f"{folder}: no finished items (manifest.jsonl is missing or empty)")
+    refuse_sequences(folder, records, "dataset-sheet")
     chosen = [records[int(i)] for i in np.linspace(0, len(records) - 1, min(n_items, len(records))).round()]
     columns = ["lowest-spp input", "highest-spp input", "reference", "albedo", "event1 normal", "event1 depth"]
     figure, axes = plt.subplots(len(chosen), len(columns), figsize=(2.4 * len(columns), 2.5 * len(chosen) + 0.4),

@@ -183,6 +183,9 @@ def _dataset_model(folder: Path, predictions: Path | None, version: str, feature
     records = read_manifest(folder)
     if not records:
         raise UserError(f"{folder}: the manifest lists no finished items")
+    from ..dataset.manifest import refuse_sequences
+
+    refuse_sequences(folder, records, "report")
     if predictions is not None and not predictions.is_dir():
         raise UserError(f"{predictions}: prediction folder not found")
     plan = {}

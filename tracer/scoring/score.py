@@ -250,6 +250,9 @@ def score_dataset(folder, predictions, *, input_spp: int | None = None, denoise_
     records = read_manifest(folder)
     if not records:
         raise UserError(f"{folder}: no finished items (manifest.jsonl is missing or empty)")
+    from ..dataset.manifest import refuse_sequences
+
+    refuse_sequences(folder, records, "score-dataset")
     if not predictions.is_dir():
         raise UserError(f"{predictions}: prediction folder not found")
     results = []

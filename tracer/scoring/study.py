@@ -115,6 +115,9 @@ def study_plan(folder, spp: int, extra_path=None) -> tuple[list[dict], list[Guid
     records = read_manifest(folder)
     if not records:
         raise UserError(f"{folder}: no finished items (manifest.jsonl is missing or empty)")
+    from ..dataset.manifest import refuse_sequences
+
+    refuse_sequences(folder, records, "feature-study")
     for record in records:
         if not any(e["spp"] == spp for e in _inputs(record)):
             raise UserError(f"--spp: item {record['id']} has no {spp}-spp input "

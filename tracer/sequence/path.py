@@ -32,6 +32,7 @@ class CameraPath:
     even_speed: bool = False
     volumes: tuple = ()                   # time steps: one volume file per frame (or per `stride` frames)
     stride: int = 1
+    mm_per_frame: float = 0.0             # "pan" (dataset sequences)
 
     def cameras(self, base: Camera) -> list[Camera]:
         """The camera of every frame, from the scene's camera ``base``."""
@@ -39,6 +40,11 @@ class CameraPath:
             return [_orbit(base, self, k) for k in range(self.frames)]
         if self.kind == "still":
             return [base] * self.frames
+        if self.kind == "pan":                      # dataset sequences: along the camera's right, mm_per_frame a frame
+            _, right, _ = base.frame()
+            shifts = [right * self.mm_per_frame * k for k in range(self.frames)]
+            return [dataclasses.replace(base, position=tuple(float(v) for v in np.asarray(base.position) + shift),
+                                        target=tuple(float(v) for v in np.asarray(base.target) + shift)) for shift in shifts]
         return _keyed(base, self)
 
     def volume_of(self, k: int):

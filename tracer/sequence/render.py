@@ -88,6 +88,30 @@ def _time_steps(scene, path):
     return lambda k: load(path.volume_of(k))
 
 
+def render_frame(scene, spp: int, first_sample: int, previous, spacing: float, about: dict, threads=None):
+    """One frame of a sequence: a render of ``scene`` (its camera the frame's) over its samples, with ``motion``,
+    ``motion_event2`` and ``disocclusion`` against ``previous`` = (camera, buffers) or None, and ``meta["sequence"]``."""
+    from ..rendering import render
+
+    sink = None
+    if previous is not None:
+        sink = DisocclusionCounter(spp, previous[0], previous[1]["event1_depth"], previous[1]["event1_hit"], spacing)
+    frame = render(scene, spp=spp, first_sample=first_sample, threads=threads, per_sample=sink)
+    camera, before = scene.camera, previous[0] if previous is not None else None
+    frame.buffers["motion"] = motion_vectors(frame["event1_position"], frame["event1_hit"], camera, before)
+    frame.buffers["motion_event2"] = motion_vectors(frame["event2_position"], frame["event2_hit"], camera, before)
+    frame.buffers["disocclusion"] = (sink.fraction(frame.spp) if sink is not None
+                                     else np.zeros(frame["alpha"].shape, np.float32))
+    frame.meta["sequence"] = {
+        **about, "world_to_camera": world_to_camera(camera).tolist(), "projection": projection(camera).tolist(),
+        "convention": "camera x right, y down, z forward; [u z, v z, z, 1] = projection @ world_to_camera @ "
+                      "[x, y, z, 1], u, v in pixels from the top-left corner",
+    }
+    frame.meta["render_seconds"] = None                     # files carry no timings: same bytes on any machine
+    frame.meta["compile_seconds"] = None
+    return frame
+
+
 def render_sequence(scene, path, out, *, spp: int | None = None, same_noise: bool = False, resume: bool = False,
                     threads: int | None = None, on_frame: Callable[[int, int], None] | None = None) -> list[Path]:
     """Render the frames of camera ``path`` (a :class:`CameraPath`) of ``scene`` into ``out/frame0000.npz, ...``.
@@ -99,7 +123,6 @@ def render_sequence(scene, path, out, *, spp: int | None = None, same_noise: boo
     import json
 
     from ..outputs.npz import write_npz
-    from ..rendering import render
 
     out = Path(out)
     spp = int(spp or scene.settings.spp)
@@ -125,23 +148,8 @@ def render_sequence(scene, path, out, *, spp: int | None = None, same_noise: boo
                 if on_frame is not None:
                     on_frame(k + 1, len(cameras))
                 continue
-        sink = None
-        if previous is not None:
-            sink = DisocclusionCounter(spp, previous[0], previous[1]["event1_depth"], previous[1]["event1_hit"], spacing)
-        frame = render(frame_scene, spp=spp, first_sample=0 if same_noise else k * spp, threads=threads, per_sample=sink)
-        before = previous[0] if previous is not None else None
-        frame.buffers["motion"] = motion_vectors(frame["event1_position"], frame["event1_hit"], camera, before)
-        frame.buffers["motion_event2"] = motion_vectors(frame["event2_position"], frame["event2_hit"], camera, before)
-        frame.buffers["disocclusion"] = (sink.fraction(frame.spp) if sink is not None
-                                         else np.zeros(frame["alpha"].shape, np.float32))
-        frame.meta["sequence"] = {
-            "frame": k, "frames": len(cameras), "kind": path.kind, "same_noise": same_noise,
-            "world_to_camera": world_to_camera(camera).tolist(), "projection": projection(camera).tolist(),
-            "convention": "camera x right, y down, z forward; [u z, v z, z, 1] = projection @ world_to_camera @ "
-                          "[x, y, z, 1], u, v in pixels from the top-left corner",
-        }
-        frame.meta["render_seconds"] = None                     # files carry no timings: same bytes on any machine
-        frame.meta["compile_seconds"] = None
+        frame = render_frame(frame_scene, spp, 0 if same_noise else k * spp, previous, spacing,
+                             {"frame": k, "frames": len(cameras), "kind": path.kind, "same_noise": same_noise}, threads)
         written.append(write_npz(target, frame))
         previous = (camera, frame.buffers)
         if on_frame is not None:
