@@ -117,9 +117,11 @@ def test_a_moving_camera_reprojects_each_mean_event_point(tmp_path):
     assert 0 < second["disocclusion"].max() <= 1                          # the silhouette uncovers some background
 
 
+@pytest.mark.slow
 def test_frames_have_independent_noise_unless_asked(tmp_path):
     still = keys_table([((45.0, -105.0, 55.0), (0.0, 0.0, 26.0))] * 2)
     path = scene_file(tmp_path, still, spp=2)
+    path.write_text(path.read_text().replace(f"width = {SIZE}\nheight = {SIZE + 8}", "width = 112\nheight = 112"))
     assert invoke("sequence", path, "--out", tmp_path / "own", "--frames", 2).exit_code == 0
     assert invoke("sequence", path, "--out", tmp_path / "same", "--frames", 2, "--same-noise").exit_code == 0
     a, b = frames(tmp_path / "own", 2)
@@ -133,8 +135,10 @@ def test_frames_have_independent_noise_unless_asked(tmp_path):
     keep = (high["alpha"] > 0.01) & (deviation > 0)
     za = ((a["radiance"].mean(-1) - high["radiance"].mean(-1)) / np.where(keep, deviation, 1))[keep]
     zb = ((b["radiance"].mean(-1) - high["radiance"].mean(-1)) / np.where(keep, deviation, 1))[keep]
-    assert keep.sum() > 600
-    assert abs(np.corrcoef(za, zb)[0, 1]) < 0.1                          # 1/sqrt(n) is about 0.04 here
+    assert keep.sum() > 3000
+    correlation = np.corrcoef(za, zb)[0, 1]
+    print(f"frame error correlation {correlation:.4f} over {keep.sum()} pixels")
+    assert abs(correlation) < 0.05                                       # 1/sqrt(n) is under 0.02 here
     assert np.all(b["motion"] == 0)                                      # a still camera does not move
 
 
