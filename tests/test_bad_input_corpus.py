@@ -286,6 +286,35 @@ CASES.append(Case("unknown candidate feature", "scene", scene_with_features('["e
                   "event2_value, event2_gradient, event2_extinction, event2_interface_weight, event2_light_transmittance, "
                   "opacity_before_event1, expected_depth, optical_depth, background_part, illumination"))
 
+def sequence_scene(sequence: str, *extra):
+    def setup(tmp: Path):
+        text = (ROOT / "examples" / "plume.toml").read_text().replace('"../', f'"{ROOT}/')
+        path = tmp / "plume.toml"
+        path.write_text(text + f"\n[sequence]\n{sequence}\n")
+        return ["sequence", path, "--out", tmp / "out", *extra]
+    return setup
+
+
+def render_plume(*options):
+    return lambda tmp: ["render", ROOT / "examples" / "plume.toml", "--out", tmp / "out", *options]
+
+
+CASES += [
+    Case("sequence with one key", "sequence", sequence_scene('kind = "keys"\n[[sequence.keys]]\nposition = [0.0, -90.0, 30.0]\ntarget = [0.0, 0.0, 30.0]'),
+         "error: {tmp}/plume.toml: sequence.keys: a keyed path needs at least 2 [[sequence.keys]], got 1"),
+    Case("zero-length orbit", "sequence", sequence_scene('kind = "orbit"\ndegrees = 0.0'),
+         "error: {tmp}/plume.toml: sequence.degrees: a zero-length orbit does not move; give a non-zero angle, got 0.0"),
+    Case("sequence of one frame", "sequence", sequence_scene('kind = "orbit"\ndegrees = 5.0', "--frames", "1"),
+         "error: --frames: a sequence needs at least 2 frames, got 1"),
+    Case("per-sample beyond the spp", "render", render_plume("--spp", "4", "--per-sample", "5"),
+         "error: --per-sample: 5 samples asked for, but the render takes at most 4 spp"),
+    Case("cluster render with no workers", "render", render_plume("--workers", "0"), "error: --workers: must be at least 1, got 0"),
+    Case("cluster render, address without scheme", "render", render_plume("--scheduler", "localhost:8786"),
+         "error: --scheduler: 'localhost:8786' is not a scheduler address like tcp://HOST:8786"),
+    Case("reference halves of an odd spp", "plan", plan({"reference_spp = 16": "reference_spp = 15\nreference_halves = true"}),
+         "error: {tmp}/plan/plan.toml: render.reference_halves: halves need an even reference_spp, got 15"),
+]
+
 REPORT_CASES = [
     Case("report of a folder that is no dataset", "report", report_of("renders", None), "error: {tmp}/renders: not a dataset folder (manifest.jsonl missing)"),
     Case("report of a JSON that is no score result", "report", report_of("scores.json", b'{"psnr": 30}'), "error: {tmp}/scores.json: not a score-dataset result (write one with tracer score-dataset --json)"),
