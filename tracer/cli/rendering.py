@@ -139,7 +139,7 @@ def render(
     if writer is not None:
         if frame.meta["stopped"] == "interrupted" and writer.written < writer.count:
             writer.abort()
-            error_console.print(f"[yellow]note:[/yellow] the per-sample output was not finished, so it was not written")
+            error_console.print("[yellow]note:[/yellow] the per-sample output was not finished, so it was not written")
         else:
             paths.append(writer.finish())
     medical_note(loaded)

@@ -95,7 +95,6 @@ def render_chunked(scene_path, *, overrides: dict, chunk_spp: int, first_sample:
     stopped, noise = None, None
 
     def add(result) -> None:
-        nonlocal noise
         accumulator.sums += result["sums"]
         accumulator.n_samples += result["n"]
         counts[0] += result["field_samples"]

@@ -56,7 +56,7 @@ class CameraPath:
 
 def parse_path(data: dict, path, base: Camera, frames: int | None) -> CameraPath:
     """The ``[sequence]`` table of scene file ``path``; ``frames`` from the command line wins over its own."""
-    from ..io.tomlfile import Table, check_vector
+    from ..io.tomlfile import Table
 
     if "sequence" not in data:
         raise UserError(f"{path}: [sequence]: missing; a sequence needs a camera path (README, \"Sequences\")")
