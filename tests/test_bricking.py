@@ -10,7 +10,6 @@ the bits of the same array held whole, and an 8-bit volume renders the bits of i
 
 from __future__ import annotations
 
-import gzip
 
 import nrrd
 import numpy as np
