@@ -120,10 +120,10 @@ def render(
 
         if distributed:
             from ..distributed.render import default_chunk_spp, render_chunked
+            from ..rendering.passes import spp_cap
 
-            cap = spp if spp is not None else (None if target_error else loaded.settings.spp)
-            chunk = chunk_spp or default_chunk_spp(cap or 65536, workers or 1)
-            progress.update(task, status="starting the cluster" if chunk_spp is None or workers or scheduler else "")
+            chunk = chunk_spp or default_chunk_spp(spp_cap(loaded.settings.spp, spp, target_error is not None), workers or 1)
+            progress.update(task, status="starting the cluster" if workers or scheduler else "")
             frame = render_chunked(scene, overrides=dict(spp=spp, seed=seed, width=width, height=height, bounces=bounces,
                                                          estimator=estimator),
                                    chunk_spp=chunk, first_sample=first_sample, target_error=target_error,

@@ -67,7 +67,7 @@ def render_chunked(scene_path, *, overrides: dict, chunk_spp: int, first_sample:
     cluster at ``scheduler``, or here when both are None; see the module docstring. Returns a Frame."""
     from ..rendering.accumulate import Accumulator
     from ..rendering.checkpoint import fingerprint, load_checkpoint, save_checkpoint
-    from ..rendering.passes import DEFAULT_TARGET_SPP_CAP, RenderProgress
+    from ..rendering.passes import RenderProgress, frame_of, spp_cap
     from ..rendering.noise import residual_noise
 
     scene_path = str(Path(scene_path).resolve())
@@ -75,7 +75,7 @@ def render_chunked(scene_path, *, overrides: dict, chunk_spp: int, first_sample:
     overrides_json = json.dumps(overrides, sort_keys=True)
     scene = _scene(scene_path, overrides_json)
     settings = scene.settings
-    spp = int(overrides.get("spp") or (DEFAULT_TARGET_SPP_CAP if target_error is not None else settings.spp))
+    spp = spp_cap(settings.spp, overrides.get("spp"), target_error is not None)
     if chunk_spp < 1:
         raise UserError(f"--chunk-spp: must be at least 1, got {chunk_spp}")
     height, width = scene.camera.image_size
@@ -133,7 +133,12 @@ def render_chunked(scene_path, *, overrides: dict, chunk_spp: int, first_sample:
             save_checkpoint(checkpoint_path, accumulator, key, seconds)
         else:
             Path(checkpoint_path).unlink(missing_ok=True)
-    return _frame(scene, accumulator, counts, stopped or "spp", seconds, chunk_spp, target_error, workers, scheduler)
+    frame = frame_of(scene, accumulator, field_samples=tuple(counts), stopped=stopped or "spp", seconds=seconds,
+                     compile_seconds=0.0, target_error=target_error)
+    frame.meta["chunk_spp"] = chunk_spp
+    frame.meta["cluster"] = ({"workers": workers} if workers is not None
+                             else {"scheduler": scheduler} if scheduler is not None else None)
+    return frame
 
 
 def _on_cluster(chunks, next_chunk, scene_path, overrides_json, add, met, workers, scheduler, numba_threads,
@@ -167,25 +172,3 @@ def _on_cluster(chunks, next_chunk, scene_path, overrides_json, add, met, worker
             if met():
                 return "target_error"
     return None
-
-
-def _frame(scene, accumulator, counts, stopped, seconds, chunk_spp, target_error, workers, scheduler):
-    from .. import __version__
-    from ..rendering.buffers import Frame
-    from ..rendering.noise import residual_noise
-
-    settings = scene.settings
-    height, width = scene.camera.image_size
-    meta = {"tool": "tracer", "version": __version__, "scene": scene.to_dict(), "spp": accumulator.n_samples,
-            "seed": settings.seed, "first_sample": accumulator.first_sample, "width": width, "height": height,
-            "render_seconds": round(seconds, 4), "compile_seconds": 0.0, "events": settings.events,
-            "step_mm": settings.step_mm, "stopped": stopped, "field_samples": counts[0],
-            "field_samples_in_nonempty_cells": counts[1], "chunk_spp": chunk_spp,
-            "cluster": {"workers": workers} if workers is not None else ({"scheduler": scheduler} if scheduler else None)}
-    buffers = accumulator.to_buffers()
-    if target_error is not None:
-        noise = residual_noise(buffers)
-        meta["relative_error"] = noise.mean_relative_error
-        meta["psnr_vs_converged_db"] = noise.psnr_db if math.isfinite(noise.psnr_db) else None
-        meta["target_error"] = target_error
-    return Frame(buffers=buffers, meta=meta, accumulator=accumulator)

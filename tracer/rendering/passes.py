@@ -320,11 +320,16 @@ def render(scene: Scene, *, spp: int | None = None, seed: int | None = None, fir
             save_checkpoint(checkpoint_path, accumulator, fingerprint(), seconds)
         else:
             Path(checkpoint_path).unlink(missing_ok=True)
-    return _frame(scene, accumulator, call, rule, stopped or "spp", seconds, compile_seconds)
+    return frame_of(scene, accumulator, field_samples=(int(call.counts[:, 0].sum()), int(call.counts[:, 1].sum())),
+                    stopped=stopped or "spp", seconds=seconds, compile_seconds=compile_seconds,
+                    target_error=rule.target_error, target_psnr=rule.target_psnr)
 
 
-def _frame(scene: Scene, accumulator: Accumulator, call: KernelCall, rule: StoppingRule, stopped: str,
-           seconds: float, compile_seconds: float) -> Frame:
+def frame_of(scene: Scene, accumulator: Accumulator, *, field_samples: tuple[int, int], stopped: str,
+             seconds: float, compile_seconds: float, target_error: float | None = None,
+             target_psnr: float | None = None) -> Frame:
+    """The finished render: the accumulator's buffers and the meta of the file contract (README, "What a render
+    writes"); with a target, the residual noise it reached. ``field_samples``: (taken, in non-empty cells)."""
     settings = scene.settings
     height, width = scene.camera.image_size
     meta = {
@@ -334,16 +339,15 @@ def _frame(scene: Scene, accumulator: Accumulator, call: KernelCall, rule: Stopp
         "width": width, "height": height, "render_seconds": round(seconds, 4),
         "compile_seconds": round(compile_seconds, 4),
         "events": settings.events, "step_mm": settings.step_mm, "stopped": stopped,
-        "field_samples": int(call.counts[:, 0].sum()),
-        "field_samples_in_nonempty_cells": int(call.counts[:, 1].sum()),
+        "field_samples": field_samples[0], "field_samples_in_nonempty_cells": field_samples[1],
     }
     buffers = accumulator.to_buffers()
-    if rule.targeted:
+    if target_error is not None or target_psnr is not None:
         noise = residual_noise(buffers)
         meta["relative_error"] = noise.mean_relative_error
         meta["psnr_vs_converged_db"] = noise.psnr_db if math.isfinite(noise.psnr_db) else None
-        if rule.target_error is not None:
-            meta["target_error"] = rule.target_error
-        if rule.target_psnr is not None:
-            meta["target_psnr"] = rule.target_psnr
+        if target_error is not None:
+            meta["target_error"] = target_error
+        if target_psnr is not None:
+            meta["target_psnr"] = target_psnr
     return Frame(buffers=buffers, meta=meta, accumulator=accumulator)
