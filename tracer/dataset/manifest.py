@@ -48,6 +48,12 @@ def write_manifest(folder, records: list[dict]) -> None:
         temporary.write_text(text)
 
 
+def npz_entries(record: dict, role: str) -> list[dict]:
+    """A record's NPZ files of one role ("input", "reference", ...), lowest spp first."""
+    return sorted((e for e in record["files"].values() if e["role"] == role and e["path"].endswith(".npz")),
+                  key=lambda e: e["spp"])
+
+
 def record_is_intact(folder, record: dict) -> bool:
     """Every file the record lists exists and matches its sha256."""
     folder = Path(folder)

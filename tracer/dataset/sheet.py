@@ -9,7 +9,7 @@ import numpy as np
 from ..errors import UserError
 from ..outputs.npz import read_npz
 from ..outputs.sheet import draw_buffer
-from .manifest import read_manifest, refuse_sequences
+from .manifest import npz_entries, read_manifest, refuse_sequences
 
 
 def write_dataset_sheet(folder, path, n_items: int = 4, exposure: float = 0.0) -> Path:
@@ -30,9 +30,8 @@ def write_dataset_sheet(folder, path, n_items: int = 4, exposure: float = 0.0) -
     figure, axes = plt.subplots(len(chosen), len(columns), figsize=(2.4 * len(columns), 2.5 * len(chosen) + 0.4),
                                 squeeze=False)
     for row, record in zip(axes, chosen):
-        inputs = sorted((f for f in record["files"].values() if f["role"] == "input" and f["path"].endswith(".npz")),
-                        key=lambda f: f["spp"])
-        reference_entry = next(f for f in record["files"].values() if f["role"] == "reference" and f["path"].endswith(".npz"))
+        inputs = npz_entries(record, "input")
+        reference_entry = npz_entries(record, "reference")[0]
         low, high, reference = (read_npz(folder / entry["path"]) for entry in (inputs[0], inputs[-1], reference_entry))
         titles = [f"{inputs[0]['spp']} spp", f"{inputs[-1]['spp']} spp", f"reference {reference_entry['spp']} spp",
                   "albedo", "event1 normal", "event1 depth (mm)"]

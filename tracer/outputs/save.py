@@ -10,16 +10,20 @@ from ..errors import UserError
 FORMATS = ("npz", "exr", "png")
 
 
+def nearest_existing(path) -> Path:
+    """``path`` itself or its nearest ancestor that exists (where a new output folder would be created)."""
+    probe = Path(path)
+    while not probe.exists() and probe.parent != probe:
+        probe = probe.parent
+    return probe
+
+
 def check_output_folder(folder) -> None:
     """Refuse, before any work, an output folder that cannot be created or written."""
     import os
 
     folder = Path(folder)
-    probe = folder
-    while not probe.exists():
-        if probe.parent == probe:
-            break
-        probe = probe.parent
+    probe = nearest_existing(folder)
     if not probe.is_dir():
         raise UserError(f"{folder}: cannot create the output folder: {probe} is not a folder")
     if not os.access(probe, os.W_OK | os.X_OK):

@@ -91,7 +91,7 @@ def _is_feature(key: str) -> bool:
 def _feature_buffers(s, n_levels: int, n: int, base: dict) -> dict[str, np.ndarray]:
     """Every candidate feature from the sums (float64): event ones over the samples with the event, camera-ray
     ones over all samples, the expected depth as a ratio of its sums, the illumination demodulated."""
-    from .buffers import ILLUMINATION_EPSILON
+    from .buffers import demodulate
 
     at = extras_offset(n_levels, True)
     out = {}
@@ -105,7 +105,7 @@ def _feature_buffers(s, n_levels: int, n: int, base: dict) -> dict[str, np.ndarr
     out["optical_depth"] = s[..., c + 3] / max(n, 1)
     background = s[..., c + 4:c + 7] / max(n, 1)
     out["background_part"] = background
-    out["illumination"] = (base["radiance"] - background) / (base["albedo"] + ILLUMINATION_EPSILON)
+    out["illumination"] = demodulate(base["radiance"], background, base["albedo"])
     return out
 
 
@@ -174,7 +174,7 @@ def merge_frames(frames: list[Frame]) -> Frame:
         if "illumination" in features and "background_part" not in features:
             from .buffers import ILLUMINATION_EPSILON
 
-            b["background_part"] = b["radiance"] - (b["albedo"] + ILLUMINATION_EPSILON) * b["illumination"]
+            b["background_part"] = b["radiance"] - (b["albedo"] + ILLUMINATION_EPSILON) * b["illumination"]   # demodulate undone
         pooled = [key for key in features if key != "illumination"]
         if "illumination" in features and "background_part" not in pooled:
             pooled.append("background_part")
@@ -204,9 +204,9 @@ def merge_frames(frames: list[Frame]) -> Frame:
         weight = feature_weights[key]
         out[key] = _safe_divide(total, weight[..., None] if np.ndim(total) == 3 else weight)
     if "illumination" in features:
-        from .buffers import ILLUMINATION_EPSILON
+        from .buffers import demodulate
 
-        out["illumination"] = (out["radiance"] - out["background_part"]) / (out["albedo"] + ILLUMINATION_EPSILON)
+        out["illumination"] = demodulate(out["radiance"], out["background_part"], out["albedo"])
     meta = dict(first.meta)
     meta.pop("source_file", None)
     meta.pop("compile_seconds", None)

@@ -59,6 +59,11 @@ def level_buffers(n_levels: int) -> list[BufferSpec]:
 ILLUMINATION_EPSILON = 1e-3
 
 
+def demodulate(radiance, background, albedo):
+    """The ``illumination`` buffer: radiance less the background seen through, over the event-1 albedo (floored)."""
+    return (radiance - background) / (albedo + ILLUMINATION_EPSILON)
+
+
 def _event_feature_specs(prefix: str, label: str) -> list[BufferSpec]:
     return [
         BufferSpec(f"{prefix}_value", 1, (f"{prefix}.value.Y",), "volume units", f"scalar value of the field at {label}"),

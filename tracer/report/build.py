@@ -178,7 +178,7 @@ def _is_medical(scene: dict) -> bool:
 
 
 def _dataset_model(folder: Path, predictions: Path | None, version: str, features: bool = True):
-    from ..dataset.manifest import read_manifest
+    from ..dataset.manifest import npz_entries, read_manifest
 
     records = read_manifest(folder)
     if not records:
@@ -196,9 +196,7 @@ def _dataset_model(folder: Path, predictions: Path | None, version: str, feature
     for record in records:
         number = int(record["index"])
         files = []
-        inputs = sorted((e for e in record["files"].values() if e["role"] == "input" and e["path"].endswith(".npz")),
-                        key=lambda e: e["spp"])
-        references = [e for e in record["files"].values() if e["role"] == "reference" and e["path"].endswith(".npz")]
+        inputs, references = npz_entries(record, "input"), npz_entries(record, "reference")
         for entry in inputs + references:
             reference = entry["role"] == "reference"
             label = f"reference ({entry['spp']} spp)" if reference else f"{entry['spp']} spp"

@@ -244,7 +244,7 @@ def score_dataset(folder, predictions, *, input_spp: int | None = None, denoise_
     """Score ``PREDICTIONS/ITEM_ID.npz`` (or ``.exr``) against each item's reference, with the item's
     own input renders as the ladder. The candidate's time is the render time of its ``input_spp``
     input (from the manifest) plus ``denoise_seconds``."""
-    from ..dataset.manifest import read_manifest
+    from ..dataset.manifest import npz_entries, read_manifest
 
     folder, predictions = Path(folder), Path(predictions)
     records = read_manifest(folder)
@@ -261,15 +261,14 @@ def score_dataset(folder, predictions, *, input_spp: int | None = None, denoise_
         candidate = next((p for p in candidates if p.is_file()), None)
         if candidate is None:
             raise UserError(f"{candidates[0]}: prediction missing for item {record['id']}")
-        files = record["files"]
-        reference_entry = next(e for e in files.values() if e["role"] == "reference" and e["path"].endswith(".npz"))
+        reference_entry = npz_entries(record, "reference")[0]
         reference, reference_arrays, _ = read_radiance(folder / reference_entry["path"])
         image, _, _ = read_radiance(candidate)
         if image.shape != reference.shape:
             raise UserError(f"{candidate}: shape {image.shape} differs from the reference's {reference.shape}")
         mask = _coverage(reference_arrays, reference_entry["path"]) if covered_only else None
         report = ScoreReport(scores=score(reference, image, exposure=exposure, mask=mask))
-        inputs = [e for e in files.values() if e["role"] == "input" and e["path"].endswith(".npz")]
+        inputs = npz_entries(record, "input")
         points = [LadderPoint(e["spp"], score(reference, read_radiance(folder / e["path"])[0], exposure=exposure,
                                               mask=mask).psnr_db, e.get("seconds")) for e in inputs]
         seconds = None

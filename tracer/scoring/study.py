@@ -102,8 +102,9 @@ def load_study_sets(path, available: list[str]) -> list[GuideSet]:
 
 
 def _inputs(record: dict) -> list[dict]:
-    return sorted((e for e in record["files"].values() if e["role"] == "input" and e["path"].endswith(".npz")),
-                  key=lambda e: e["spp"])
+    from ..dataset.manifest import npz_entries
+
+    return npz_entries(record, "input")
 
 
 def study_plan(folder, spp: int, extra_path=None) -> tuple[list[dict], list[GuideSet]]:
@@ -129,6 +130,7 @@ def study_plan(folder, spp: int, extra_path=None) -> tuple[list[dict], list[Guid
 
 def run_study(folder, *, spp: int = 1, sets_path=None, threads: int | None = None,
               on_progress: Callable[[int, int], None] | None = None) -> StudyResult:
+    from ..dataset.manifest import npz_entries
     from ..outputs.npz import read_npz
     from .denoise import denoise_guided
     from .metrics import score
@@ -139,7 +141,7 @@ def run_study(folder, *, spp: int = 1, sets_path=None, threads: int | None = Non
     rows = []
     noise: dict[str, list] = {}
     for done, record in enumerate(records):
-        reference_entry = next(e for e in record["files"].values() if e["role"] == "reference" and e["path"].endswith(".npz"))
+        reference_entry = npz_entries(record, "reference")[0]
         reference, reference_arrays, _ = read_radiance(folder / reference_entry["path"])
         inputs = _inputs(record)
         ladder = [(e["spp"], score(reference, read_radiance(folder / e["path"])[0]).psnr_db) for e in inputs]

@@ -28,10 +28,9 @@ def estimate_bytes(scene, frames: int) -> int:
 
 
 def check_disk(out: Path, needed: int) -> None:
-    probe = Path(out)
-    while not probe.exists() and probe.parent != probe:
-        probe = probe.parent
-    free = shutil.disk_usage(probe).free
+    from ..outputs.save import nearest_existing
+
+    free = shutil.disk_usage(nearest_existing(out)).free
     if needed > free:
         raise UserError(f"{out}: the sequence needs up to {needed / 2**30:.1f} GiB and {free / 2**30:.1f} GiB are free; "
                         "render fewer or smaller frames, or choose another --out")
