@@ -57,15 +57,6 @@ def frame_paths(folder) -> list[Path]:
     return paths
 
 
-def _load(path) -> dict:
-    from ..outputs.npz import load_arrays
-
-    arrays = load_arrays(path)
-    if "radiance" not in arrays:
-        raise UserError(f"{path}: radiance: missing")
-    return arrays
-
-
 def _psnr(mse: float) -> float:
     return float("inf") if mse <= 0 else 10.0 * math.log10(1.0 / mse)
 
@@ -74,6 +65,7 @@ def score_sequence(reference_dir, candidate_dir, *, exposure: float = 0.0) -> di
     """Per-frame PSNR/SSIM and the two temporal figures of the module docstring; JSON-ready."""
     from ..outputs.png import to_display
     from ..scoring.metrics import score
+    from ..scoring.score import read_radiance
 
     references = frame_paths(reference_dir)
     candidates = [Path(candidate_dir) / path.name for path in references]
@@ -82,14 +74,14 @@ def score_sequence(reference_dir, candidate_dir, *, exposure: float = 0.0) -> di
         raise UserError(f"{missing[0]}: frame missing (the candidate needs every frame of the reference)")
     frames, previous = [], None
     for index, (reference_path, candidate_path) in enumerate(zip(references, candidates)):
-        reference, candidate = _load(reference_path), _load(candidate_path)
-        if candidate["radiance"].shape != reference["radiance"].shape:
-            raise UserError(f"{candidate_path}: shape {candidate['radiance'].shape} differs from the reference's")
+        (reference_radiance, reference, _), (candidate_radiance, _, _) = read_radiance(reference_path), read_radiance(candidate_path)
+        if candidate_radiance.shape != reference_radiance.shape:
+            raise UserError(f"{candidate_path}: shape {candidate_radiance.shape} differs from the reference's")
         for key in ("motion", "disocclusion"):
             if key not in reference:
                 raise UserError(f"{reference_path}: {key}: missing; render the reference with tracer sequence")
-        r, c = to_display(reference["radiance"], exposure), to_display(candidate["radiance"], exposure)
-        scores = score(reference["radiance"], candidate["radiance"], exposure=exposure)
+        r, c = to_display(reference_radiance, exposure), to_display(candidate_radiance, exposure)
+        scores = score(reference_radiance, candidate_radiance, exposure=exposure)
         row = {"frame": index, "psnr_db": scores.psnr_db, "ssim": scores.ssim,
                "temporal_psnr_db": None, "flicker_psnr_db": None, "valid_pixels": None}
         if previous is not None:
@@ -156,12 +148,13 @@ def write_preview_gif(path, columns: list[tuple[str, object]], *, exposure: floa
 
     from ..io.atomic import atomic_path
     from ..outputs.png import to_display, to_uint8
+    from ..scoring.score import read_radiance
 
     folders = [(label, frame_paths(folder)) for label, folder in columns]
     count = min(len(paths) for _, paths in folders)
     images = []
     for k in range(count):
-        tiles = [to_uint8(to_display(_load(paths[k])["radiance"], exposure)) for _, paths in folders]
+        tiles = [to_uint8(to_display(read_radiance(paths[k])[0], exposure)) for _, paths in folders]
         gap = np.full((tiles[0].shape[0], 4, 3), 24, np.uint8)
         row = [tiles[0]]
         for tile in tiles[1:]:
