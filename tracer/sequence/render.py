@@ -79,11 +79,8 @@ def _time_steps(scene, path):
                             "every time step must share one grid")
         return volume
 
-    for name in path.volumes:                      # every check before the first frame
-        load(name)
-    load.cache_clear()
-    first_name = path.volumes[0]
-    load(first_name)
+    for name in path.volumes:                      # every check before the first frame (each step is read again
+        load(name)                                 # when its frame comes: only two are held at a time)
     return lambda k: load(path.volume_of(k))
 
 
