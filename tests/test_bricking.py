@@ -107,7 +107,7 @@ def test_nonfinite_voxels_are_counted_across_planes(tmp_path):
 @pytest.mark.parametrize("size", [8, 4])
 def test_macrocells_are_the_largest_extinction_over_each_cells_voxels(size):
     """Reference: numpy over the voxel block [size c, size c + size] per axis and the baked table entries spanning
-    the block's value range (the definition in ``geometry.build_macrocells``' docstring)."""
+    the block's value range (the definition in ``rendering.arguments.macrocells``' docstring)."""
     from tracer.optics.transfer import TransferFunction
     from tracer.rendering.arguments import macrocells
 

@@ -3,10 +3,9 @@
 import math
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
-from ..config import JIT, JIT_PARALLEL
-from .sampling import BRICK_MASK, BRICK_SHIFT, table_position
+from ..config import JIT
 
 #: Macrocells span this many voxel intervals per axis.
 CELL = 8
@@ -54,44 +53,6 @@ def to_index_direction(world_to_index, dx, dy, dz):
             m[2, 0] * dx + m[2, 1] * dy + m[2, 2] * dz)
 
 
-@njit(**JIT_PARALLEL)
-def build_macrocells(bricks, extinction, lookup, size, out):
-    """Largest extinction any point of each macrocell can take, read from the bricked field.
-
-    bricks (gx, gy, gz, BRICK+1, BRICK+1, BRICK+1) (see ``sampling.fill_brick_layer``); extinction (n,)
-    float32 table; lookup (2,) float64; size: voxel intervals per cell, a divisor of BRICK (CELL for
-    the march's skipping, TRACK_CELL for tracking); out (ceil((nx-1)/size), ...) float32. Cell c
-    covers voxel indices [size c, size c + size] (the trilinear field inside it is a convex
-    combination of those voxels), all inside one brick (past the field's end the brick repeats its
-    last voxel, which changes no minimum or maximum); its value is the largest table entry over the
-    table interval spanning the cell's [min, max] value, so a cell holding 0 has zero extinction
-    everywhere inside it, exactly.
-    """
-    cx, cy, cz = out.shape
-    n_entries = extinction.shape[0]
-    for a in prange(cx):
-        brick_a, i0 = (a * size) >> BRICK_SHIFT, (a * size) & BRICK_MASK
-        for b in range(cy):
-            brick_b, j0 = (b * size) >> BRICK_SHIFT, (b * size) & BRICK_MASK
-            for c in range(cz):
-                brick_c, k0 = (c * size) >> BRICK_SHIFT, (c * size) & BRICK_MASK
-                brick = bricks[brick_a, brick_b, brick_c]
-                low = np.inf
-                high = -np.inf
-                for i in range(i0, i0 + size + 1):
-                    for j in range(j0, j0 + size + 1):
-                        for k in range(k0, k0 + size + 1):
-                            value = brick[i, j, k]
-                            low = min(low, value)
-                            high = max(high, value)
-                e0 = int(math.floor(table_position(lookup, n_entries, low)))
-                e1 = min(int(math.ceil(table_position(lookup, n_entries, high))), n_entries - 1)
-                largest = 0.0
-                for e in range(e0, e1 + 1):
-                    largest = max(largest, extinction[e])
-                out[a, b, c] = largest
-
-
 @njit(**JIT)
 def cell_faces_exit(a, b, c, size, ox, oy, oz, ix, iy, iz):
     """The ray parameter where the ray o + t i leaves cell (a, b, c) of a grid of ``size``-voxel cells."""
@@ -112,13 +73,34 @@ def cell_faces_exit(a, b, c, size, ox, oy, oz, ix, iy, iz):
 
 
 @njit(**JIT)
-def cell_exit(cells, ox, oy, oz, ix, iy, iz, px, py, pz):
-    """For index point p on the ray o + t i: whether its macrocell is empty, and the ray parameter
-    where the ray leaves that cell."""
+def axis_exit(a, size, o, d):
+    """Where the ray o + t d (one axis) leaves slab ``a`` of ``size``-voxel cells; inf when d is 0."""
+    if d > 0.0:
+        return ((a + 1) * size - o) / d
+    if d < 0.0:
+        return (a * size - o) / d
+    return np.inf
+
+
+@njit(**JIT)
+def enter_cell(cells, ox, oy, oz, ix, iy, iz, px, py, pz, a0, b0, c0, ea, eb, ec):
+    """For index point p on the ray o + t i: whether its macrocell is empty, the ray parameter where the ray
+    leaves that cell (the same number as :func:`cell_faces_exit`), and the walk's state for the next call.
+
+    The state is the previous cell (a0, b0, c0) (-1 before the first) and the exits of its slabs (ea, eb, ec):
+    only the axes whose slab changed are recomputed, since a march crosses about one face per cell.
+    """
     a = min(int(px * INV_CELL), cells.shape[0] - 1)
     b = min(int(py * INV_CELL), cells.shape[1] - 1)
     c = min(int(pz * INV_CELL), cells.shape[2] - 1)
-    return cells[a, b, c] <= 0.0, cell_faces_exit(a, b, c, CELL, ox, oy, oz, ix, iy, iz)
+    if a != a0:
+        ea = axis_exit(a, CELL, ox, ix)
+    if b != b0:
+        eb = axis_exit(b, CELL, oy, iy)
+    if c != c0:
+        ec = axis_exit(c, CELL, oz, iz)
+    empty = cells[np.uint64(a), np.uint64(b), np.uint64(c)] <= 0.0
+    return empty, min(min(ea, eb), ec), a, b, c, ea, eb, ec
 
 
 @njit(**JIT)

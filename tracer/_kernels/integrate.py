@@ -30,7 +30,7 @@ from numba import njit, prange
 
 from ..config import JIT, JIT_PARALLEL
 from .rng import uniform
-from .geometry import box_interval, cell_exit, next_segment_after, segment_bounds, to_index, to_index_direction
+from .geometry import box_interval, enter_cell, next_segment_after, segment_bounds, to_index, to_index_direction
 from .sampling import albedo_at, extinction_at, trilinear_bricked
 from .shading import (background_along, environment_radiance, event_frame, interface_weight, light_toward, lobe,
                       sample_lobe)
@@ -84,6 +84,7 @@ def transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, 
     n_useful = 0
     cell_end = -np.inf
     empty = False
+    ca, cb, cc, ea, eb, ec = -1, -1, -1, np.inf, np.inf, np.inf
     j = 0
     while True:
         ta, tb = segment_bounds(t0, t1, step, u_offset, j)
@@ -92,7 +93,8 @@ def transmittance(bricks, shape, cells, world_to_index, extinction, lookup, px, 
         tm = 0.5 * (ta + tb)
         qx, qy, qz = ox + tm * ix, oy + tm * iy, oz + tm * iz
         if tm >= cell_end:       # entered another macrocell: look it up once
-            empty, cell_end = cell_exit(cells, ox, oy, oz, ix, iy, iz, qx, qy, qz)
+            empty, cell_end, ca, cb, cc, ea, eb, ec = enter_cell(cells, ox, oy, oz, ix, iy, iz, qx, qy, qz, ca, cb, cc,
+                                                                 ea, eb, ec)
             if empty and skip:
                 j = next_segment_after(t0, step, u_offset, j, cell_end)
                 continue
@@ -217,6 +219,7 @@ def march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixe
         n_useful = 0
         cell_end = -np.inf
         empty = False
+        ca, cb, cc, ea, eb, ec = -1, -1, -1, np.inf, np.inf, np.inf
         j = 0
         while True:
             ta, tb = segment_bounds(t0, t1, step, u_offset, j)
@@ -230,7 +233,8 @@ def march_camera_ray(volume, transfer, cells, n_events, levels, step, seed, pixe
             tm = 0.5 * (ta + tb)
             qx, qy, qz = ox + tm * ix, oy + tm * iy, oz + tm * iz
             if tm >= cell_end:       # entered another macrocell: look it up once
-                empty, cell_end = cell_exit(cells, ox, oy, oz, ix, iy, iz, qx, qy, qz)
+                empty, cell_end, ca, cb, cc, ea, eb, ec = enter_cell(cells, ox, oy, oz, ix, iy, iz, qx, qy, qz, ca, cb, cc,
+                                                                     ea, eb, ec)
                 if empty and skip:
                     j = next_segment_after(t0, step, u_offset, j, cell_end)
                     continue
@@ -438,7 +442,7 @@ def render_rows(volume, transfer, cells, camera, lights, env_kind, env_colors, e
         shape (3,) int64)
     transfer : TransferArrays (albedo (n, 3) float32; extinction (n,) float32 per mm; lookup (2,) float64;
         emission (n, 3) float32; emitting bool: whether the march collects emission at all)
-    cells : (cx, cy, cz) float32 macrocell maxima from :func:`build_macrocells`
+    cells : (cx, cy, cz) float32 macrocell maxima from ``tracer.rendering.arguments.macrocells``
     skip : bool; step over empty cells (exact); false marches through them (for measurements)
     camera : (4, 3) float64 rows: position (mm), forward (unit), right and up scaled by the
         half-extent of the image plane at distance 1

@@ -8,9 +8,9 @@ import math
 
 import numpy as np
 
-from numba import njit, prange
+from numba import njit
 
-from ..config import JIT, JIT_PARALLEL
+from ..config import JIT
 
 INV_PI = 1.0 / math.pi
 INV_4PI = 1.0 / (4.0 * math.pi)
@@ -51,63 +51,27 @@ def trilinear(field, x, y, z):
 
 
 #: Voxel intervals per brick; bricks store BRICK + 1 samples per axis (one shared with the next brick),
-#: so the 8 voxels of any trilinear lookup lie in one brick.
+#: so the 8 voxels of any trilinear lookup lie in one brick (filled by ``tracer.volumes.bricking``).
 BRICK = 8
 BRICK_SHIFT = 3
 BRICK_MASK = BRICK - 1
-
-
-@njit(**JIT_PARALLEL)
-def fill_brick_layer(slab, axis, layer, shape, out):
-    """Fill the bricks of index ``layer`` along ``axis`` from ``slab``, a part of the field: the planes
-    ``[BRICK layer, min(BRICK layer + BRICK, n - 1)]`` along ``axis`` (n = ``shape[axis]``) and the whole
-    extent along the other two, in [x, y, z] order.
-
-    Brick (a, b, c) holds voxels [BRICK a, BRICK a + BRICK] per axis (edge-clamped past the end), so a
-    lookup's neighbourhood is a few kilobytes apart at most instead of whole planes apart: rays in any
-    direction stay in cache (a bricked layout; it pays on large volumes, see benchmarks/)."""
-    gx, gy, gz = out.shape[0], out.shape[1], out.shape[2]
-    first = layer * BRICK
-    counts = (1 if axis == 0 else gx, 1 if axis == 1 else gy, 1 if axis == 2 else gz)
-    for flat_u in prange(counts[0] * counts[1] * counts[2]):
-        flat = np.int64(flat_u)
-        a = layer if axis == 0 else flat // (counts[1] * counts[2])
-        b = layer if axis == 1 else (flat // counts[2]) % counts[1]
-        c = layer if axis == 2 else flat % counts[2]
-        for i in range(BRICK + 1):
-            x = min(a * BRICK + i, shape[0] - 1) - (first if axis == 0 else 0)
-            for j in range(BRICK + 1):
-                y = min(b * BRICK + j, shape[1] - 1) - (first if axis == 1 else 0)
-                for k in range(BRICK + 1):
-                    z = min(c * BRICK + k, shape[2] - 1) - (first if axis == 2 else 0)
-                    out[a, b, c, i, j, k] = slab[x, y, z]
-
-
-@njit(**JIT_PARALLEL)
-def unbrick(bricks, out):
-    """The plain field (nx, ny, nz) back from its bricks (the inverse of filling every layer with :func:`fill_brick_layer`)."""
-    nx, ny, nz = out.shape
-    gx, gy, gz = bricks.shape[0], bricks.shape[1], bricks.shape[2]
-    for xu in prange(nx):
-        x = np.int64(xu)                       # prange's index may be unsigned; keep the arithmetic signed
-        a = min(x >> BRICK_SHIFT, gx - 1)
-        for y in range(ny):
-            b = min(y >> BRICK_SHIFT, gy - 1)
-            for z in range(nz):
-                c = min(z >> BRICK_SHIFT, gz - 1)
-                out[x, y, z] = bricks[a, b, c, x - a * BRICK, y - b * BRICK, z - c * BRICK]
+# unsigned copies: numba adds a negative-index wrap-around test to every signed index, and these lookups are
+# the march's inner loop (indices here are never negative, so the values are the same)
+_U_SHIFT = np.uint64(BRICK_SHIFT)
+_U_MASK = np.uint64(BRICK_MASK)
+_U_ONE = np.uint64(1)
 
 
 @njit(**JIT)
 def trilinear_bricked(bricks, shape, x, y, z):
     """:func:`trilinear` on the bricked copy of the field; ``shape`` (3,) is the field's shape. Same values."""
     i, j, k, fx, fy, fz = locate(shape[0], shape[1], shape[2], x, y, z)
-    a, i = i >> BRICK_SHIFT, i & BRICK_MASK       # i // BRICK, i % BRICK for i >= 0
-    b, j = j >> BRICK_SHIFT, j & BRICK_MASK
-    c, k = k >> BRICK_SHIFT, k & BRICK_MASK
-    brick = bricks[a, b, c]
-    return blend_corners(brick[i, j, k], brick[i + 1, j, k], brick[i, j + 1, k], brick[i + 1, j + 1, k],
-                         brick[i, j, k + 1], brick[i + 1, j, k + 1], brick[i, j + 1, k + 1], brick[i + 1, j + 1, k + 1],
+    ui, uj, uk = np.uint64(i), np.uint64(j), np.uint64(k)
+    brick = bricks[ui >> _U_SHIFT, uj >> _U_SHIFT, uk >> _U_SHIFT]
+    i0, j0, k0 = ui & _U_MASK, uj & _U_MASK, uk & _U_MASK       # i % BRICK for i >= 0
+    i1, j1, k1 = i0 + _U_ONE, j0 + _U_ONE, k0 + _U_ONE
+    return blend_corners(brick[i0, j0, k0], brick[i1, j0, k0], brick[i0, j1, k0], brick[i1, j1, k0],
+                         brick[i0, j0, k1], brick[i1, j0, k1], brick[i0, j1, k1], brick[i1, j1, k1],
                          fx, fy, fz)
 
 
@@ -145,7 +109,8 @@ def extinction_at(extinction, lookup, value):
     u = table_position(lookup, n, value)
     e = min(int(u), n - 2)
     f = u - e
-    return extinction[e] * (1.0 - f) + extinction[e + 1] * f
+    ue = np.uint64(e)
+    return extinction[ue] * (1.0 - f) + extinction[ue + _U_ONE] * f
 
 
 @njit(**JIT)
@@ -155,9 +120,11 @@ def albedo_at(albedo, lookup, value):
     u = table_position(lookup, n, value)
     e = min(int(u), n - 2)
     f = u - e
-    return (albedo[e, 0] * (1.0 - f) + albedo[e + 1, 0] * f,
-            albedo[e, 1] * (1.0 - f) + albedo[e + 1, 1] * f,
-            albedo[e, 2] * (1.0 - f) + albedo[e + 1, 2] * f)
+    e0 = np.uint64(e)
+    e1 = e0 + _U_ONE
+    return (albedo[e0, 0] * (1.0 - f) + albedo[e1, 0] * f,
+            albedo[e0, 1] * (1.0 - f) + albedo[e1, 1] * f,
+            albedo[e0, 2] * (1.0 - f) + albedo[e1, 2] * f)
 
 
 @njit(**JIT)

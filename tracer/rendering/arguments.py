@@ -63,12 +63,45 @@ def transport_arguments(scene: Scene, arguments: tuple) -> tuple:
 
 
 def macrocells(volume, transfer, size: int | None = None) -> np.ndarray:
-    """(ceil((nx-1)/size), ...) float32: the largest extinction inside each size^3-voxel cell of ``volume``
-    (default the march's 8^3 macrocells), read from its bricks."""
-    from .._kernels.geometry import CELL, build_macrocells
+    """(ceil((nx-1)/size), ...) float32: the largest extinction any point of each size^3-voxel cell of ``volume``
+    can take (default the march's 8^3 macrocells), read from its bricks.
+
+    Cell c covers voxel indices [size c, size c + size] per axis (the trilinear field inside it is a convex
+    combination of those voxels), all inside one brick (past the field's end a brick repeats its last voxel,
+    which changes no minimum or maximum); its value is the largest table entry over the table interval
+    spanning the cell's [min, max] value, so a cell holding 0 has zero extinction everywhere inside it, exactly.
+    ``size`` divides BRICK (CELL for the march's skipping, TRACK_CELL for tracking).
+    """
+    from .._kernels.geometry import CELL
+    from .._kernels.sampling import BRICK
 
     size = CELL if size is None else int(size)
     shape = tuple(max(1, -(-(n - 1) // size)) for n in volume.shape)
+    bricks = volume.bricks
+    per = BRICK // size
+    extinction, lookup = transfer.extinction, transfer.lookup
+    n = extinction.shape[0]
+    entries = np.append(extinction, np.float32(0.0))
     out = np.empty(shape, np.float32)
-    build_macrocells(volume.bricks, transfer.extinction, transfer.lookup, size, out)
+    for brick_row in range(bricks.shape[0]):       # a layer of bricks at a time: the temporaries stay small
+        cells = slice(brick_row * per, min(brick_row * per + per, shape[0]))
+        grid = (per, bricks.shape[1] * per, bricks.shape[2] * per)
+        low, high = np.empty(grid, bricks.dtype), np.empty(grid, bricks.dtype)
+        for da, db, dc in np.ndindex(per, per, per):
+            block = bricks[brick_row, :, :, da * size:da * size + size + 1, db * size:db * size + size + 1,
+                           dc * size:dc * size + size + 1]
+            low[da, db::per, dc::per] = block.min(axis=(2, 3, 4))
+            high[da, db::per, dc::per] = block.max(axis=(2, 3, 4))
+        kept = (slice(0, cells.stop - cells.start), slice(0, shape[1]), slice(0, shape[2]))
+        low, high = low[kept], high[kept]
+
+        def position(values):           # the kernels' table_position, in the same float64 operations
+            return np.minimum(np.maximum((values.astype(np.float64) - lookup[0]) * lookup[1], 0.0), n - 1.0)
+
+        first = np.floor(position(low)).astype(np.int64).ravel()
+        last = np.minimum(np.ceil(position(high)).astype(np.int64), n - 1).ravel()
+        bounds = np.empty(2 * first.size, np.int64)
+        bounds[0::2], bounds[1::2] = first, last + 1          # each cell's entries [first, last]
+        largest = np.maximum.reduceat(entries, bounds)[0::2]
+        out[cells] = np.maximum(largest, 0.0).astype(np.float32).reshape(low.shape)
     return out

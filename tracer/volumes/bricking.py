@@ -16,6 +16,7 @@ from typing import Callable
 import numpy as np
 
 from ..errors import UserError
+from .bricks import fill_brick_layer
 from .volume import brick_grid, count_nonfinite, storage_dtype
 
 
@@ -47,7 +48,7 @@ def bricks_from_slabs(slabs: Slabs, source, allow_nonfinite: bool = False) -> np
     Values are stored as :func:`~tracer.volumes.volume.storage_dtype` of the file's type. Non-finite voxels
     are refused (one line naming ``source``) unless ``allow_nonfinite``.
     """
-    from .._kernels.sampling import BRICK, fill_brick_layer
+    from .._kernels.sampling import BRICK
 
     shape, axis = tuple(int(n) for n in slabs.shape), slabs.axis
     bricks = np.empty(brick_grid(shape), storage_dtype(slabs.dtype))
@@ -65,7 +66,7 @@ def bricks_from_slabs(slabs: Slabs, source, allow_nonfinite: bool = False) -> np
         fresh = np.asarray(fresh, dtype=bricks.dtype)
         nonfinite += count_nonfinite(fresh)
         slab = fresh if previous is None else np.concatenate([previous, fresh], axis=axis)
-        fill_brick_layer(np.require(slab, requirements=('C', 'W')), axis, layer, shape_array, bricks)
+        fill_brick_layer(slab, axis, layer, shape_array, bricks)
         previous = np.take(slab, [slab.shape[axis] - 1], axis=axis)
     if nonfinite and not allow_nonfinite:
         raise UserError(f"{source}: data: {nonfinite} voxels are NaN or Inf; fix or mask them before rendering")

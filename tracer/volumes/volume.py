@@ -102,7 +102,7 @@ class Volume:
         The file's NRRD ``space`` (canonical name, e.g. ``"left-posterior-superior"``): what the world
         axes mean. Geometry comes from ``directions`` alone; see :mod:`.orientation`.
     bricks, shape : optional
-        Instead of ``data``: the field already in the renderer's bricks (``sampling.fill_brick_layer``'s layout)
+        Instead of ``data``: the field already in the renderer's bricks (``bricks.fill_brick_layer``'s layout)
         and its shape. :func:`~tracer.volumes.loading.load_volume` builds volumes this way and keeps no
         plain copy (a volume then costs its bricks, about 1.42 x the field's bytes); :attr:`data`
         assembles the plain array from the bricks on each use.
@@ -139,11 +139,9 @@ class Volume:
         """The field as a plain (nx, ny, nz) array (for a volume held as bricks only, a new array each time)."""
         if self._data is not None:
             return self._data
-        from .._kernels.sampling import unbrick
+        from .bricks import unbrick
 
-        out = np.empty(self._shape, self._bricks.dtype)
-        unbrick(self._bricks, out)
-        return out
+        return unbrick(self._bricks, self._shape)
 
     @property
     def dtype(self) -> np.dtype:
@@ -221,7 +219,8 @@ class Volume:
     def bricks(self) -> np.ndarray:
         """The field in 8^3-voxel bricks with a shared face (built once per volume, then kept)."""
         if self._bricks is None:
-            from .._kernels.sampling import BRICK, fill_brick_layer
+            from .._kernels.sampling import BRICK
+            from .bricks import fill_brick_layer
 
             bricks = np.empty(brick_grid(self.shape), self._data.dtype)
             n = self.shape[0]
